@@ -1,0 +1,2 @@
+//! Structural analysis of a resolved model: the mode graph (petgraph) and exact guard
+//! reasoning.

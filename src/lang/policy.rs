@@ -1,0 +1,1 @@
+//! Policy front end (placeholder until the parser lands).

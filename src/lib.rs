@@ -1,0 +1,13 @@
+//! limpet: design, prove and review the limp-home policy of a drive-by-wire throttle.
+//!
+//! Data flows one way: text -> `lang` (AST with spans) -> `model` (resolved IR) -> analysis,
+//! the pure `controller` step driven by `sim` or `prove`, and `diff` over two models.
+
+pub mod analysis;
+pub mod controller;
+pub mod diag;
+pub mod faults;
+pub mod lang;
+pub mod model;
+pub mod plant;
+pub mod time;

@@ -1,0 +1,1 @@
+//! End-to-end tests over files in scenarios/ and tests/fixtures/.
