@@ -10,4 +10,5 @@ pub mod faults;
 pub mod lang;
 pub mod model;
 pub mod plant;
+pub mod sim;
 pub mod time;

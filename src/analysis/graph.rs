@@ -1,0 +1,1 @@
+//! Mode-graph findings (placeholder).

@@ -1,0 +1,1 @@
+//! Exact reasoning over guards (placeholder).

@@ -1,0 +1,4 @@
+//! The discrete-event simulator: scenario scripts resolved against a policy, the event queue,
+//! expectations and traces.
+
+pub mod script;

@@ -1,0 +1,1 @@
+//! Scenario scripts resolved against a policy model (placeholder).
