@@ -123,7 +123,11 @@ pub struct SensorAst {
 
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub enum SensorItem {
-    Track { name: Ident, points: Vec<(Quantity, Quantity)>, span: Span },
+    Track {
+        name: Ident,
+        points: Vec<(Quantity, Quantity)>,
+        span: Span,
+    },
     Filter(Quantity, Span),
     OpenReads(Quantity, Span),
     Combine(Ident, Span),
@@ -147,8 +151,18 @@ pub struct ActuatorAst {
 pub enum ActuatorItem {
     Default(Quantity, Span),
     Idle(Quantity, Span),
-    Open { from: Quantity, to: Quantity, time: Quantity, span: Span },
-    Spring { from: Quantity, to: Quantity, time: Quantity, span: Span },
+    Open {
+        from: Quantity,
+        to: Quantity,
+        time: Quantity,
+        span: Span,
+    },
+    Spring {
+        from: Quantity,
+        to: Quantity,
+        time: Quantity,
+        span: Span,
+    },
     Feedback(Ident, Span),
 }
 
@@ -173,7 +187,13 @@ pub struct FaultAst {
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub enum DebounceAst {
     For(Quantity, Span),
-    Count { up: Integer, down: Integer, fail: Integer, pass: Option<Integer>, span: Span },
+    Count {
+        up: Integer,
+        down: Integer,
+        fail: Integer,
+        pass: Option<Integer>,
+        span: Span,
+    },
 }
 
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -223,9 +243,21 @@ pub struct AssureAst {
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub enum AssureItem {
     Faults(Ident, Span),
-    Excess { below: Quantity, within: Quantity, span: Span },
-    Never { above: Quantity, unless_driver: Option<Quantity>, span: Span },
-    Idle { within: Quantity, span: Span },
+    Excess {
+        below: Quantity,
+        within: Quantity,
+        span: Span,
+    },
+    /// `never above X unless driver above Y`; the name after `unless` is kept for checking.
+    Never {
+        above: Quantity,
+        unless: Option<(Ident, Quantity)>,
+        span: Span,
+    },
+    Idle {
+        within: Quantity,
+        span: Span,
+    },
 }
 
 /// A dotted name: `pedal`, `pedal.a`, `pedal.a.volts`, `target`.
@@ -305,8 +337,10 @@ pub fn parse(src: &str) -> (Option<PolicyAst>, Vec<Diagnostic>) {
                     return (None, diags);
                 }
                 if let Some((a, b)) = line_range {
-                    let blank: String =
-                        text[a..b].chars().map(|c| if c == '\n' { c } else { ' ' }).collect();
+                    let blank: String = text[a..b]
+                        .chars()
+                        .map(|c| if c == '\n' { c } else { ' ' })
+                        .collect();
                     // Keep byte offsets: replace each char by as many spaces as its UTF-8 length.
                     let blank: String = text[a..b]
                         .chars()
@@ -365,7 +399,6 @@ fn rule_words(r: &Rule) -> Option<&'static str> {
         Rule::tolerates => "`tolerates`",
         Rule::dwell => "`for TIME`",
         Rule::faults_scope => "`faults single` or `faults double`",
-        Rule::scope_kind => "`single` or `double`",
         Rule::req_excess => "`excess below X within T`",
         Rule::req_never => "`never above X`",
         Rule::req_idle => "`idle within T of release`",
@@ -387,7 +420,10 @@ fn rule_words(r: &Rule) -> Option<&'static str> {
 }
 
 /// Turns a pest error into our diagnostic, and returns the byte range of the line it is on.
-fn syntax_diagnostic(src: &str, e: &pest::error::Error<Rule>) -> (Diagnostic, Option<(usize, usize)>) {
+fn syntax_diagnostic(
+    src: &str,
+    e: &pest::error::Error<Rule>,
+) -> (Diagnostic, Option<(usize, usize)>) {
     use pest::error::{ErrorVariant, InputLocation};
     let pos = match e.location {
         InputLocation::Pos(p) => p,
@@ -397,7 +433,11 @@ fn syntax_diagnostic(src: &str, e: &pest::error::Error<Rule>) -> (Diagnostic, Op
     // The span is the token at the error position (up to white space), at least one byte.
     let tail = &src[pos..];
     let len = tail.find(|c: char| c.is_whitespace()).unwrap_or(tail.len());
-    let end = if len == 0 { (pos + tail.chars().next().map_or(0, |c| c.len_utf8())).min(src.len()) } else { pos + len };
+    let end = if len == 0 {
+        (pos + tail.chars().next().map_or(0, |c| c.len_utf8())).min(src.len())
+    } else {
+        pos + len
+    };
     let span = Span::new(pos, end);
     let found = if tail.is_empty() {
         "the end of the file".to_string()
@@ -418,17 +458,25 @@ fn syntax_diagnostic(src: &str, e: &pest::error::Error<Rule>) -> (Diagnostic, Op
                 0 => "something else".to_string(),
                 1 => seen[0].to_string(),
                 _ => {
-                    let (last, rest) = seen.split_last().map(|(l, r)| (*l, r.join(", "))).unwrap_or(("", String::new()));
+                    let (last, rest) = seen
+                        .split_last()
+                        .map(|(l, r)| (*l, r.join(", ")))
+                        .unwrap_or(("", String::new()));
                     format!("{rest} or {last}")
                 }
             };
-            (format!("expected {expected}, found {found}"), hint_for(src, pos, &seen))
+            (
+                format!("expected {expected}, found {found}"),
+                hint_for(src, pos, &seen),
+            )
         }
         ErrorVariant::CustomError { message } => (message.clone(), String::new()),
     };
     let line_start = src[..pos].rfind('\n').map_or(0, |i| i + 1);
     let line_end = src[pos..].find('\n').map_or(src.len(), |i| pos + i);
-    let d = Diagnostic::error("syntax", span, message).with_label("not understood here").with_hint(hint);
+    let d = Diagnostic::error("syntax", span, message)
+        .with_label("not understood here")
+        .with_hint(hint);
     (d, Some((line_start, line_end)))
 }
 
@@ -440,7 +488,10 @@ fn hint_for(src: &str, pos: usize, expected: &[&str]) -> String {
     if before.ends_with("->") {
         return "a transition reads `FROM -> TO when GUARD`, with TO a mode name".into();
     }
-    if expected.iter().any(|w| w.contains("a condition") || w.contains("a signal")) {
+    if expected
+        .iter()
+        .any(|w| w.contains("a condition") || w.contains("a signal"))
+    {
         return "conditions combine fault names, `suspect(X.a)`, switches and comparisons like `pedal below 3 %` with `and`, `or`, `not`".into();
     }
     "see the reference policy in DESIGN.md for the form of each line".into()
@@ -456,29 +507,50 @@ fn span(p: &Pair<'_, Rule>) -> Span {
 }
 
 fn ident(p: Pair<'_, Rule>) -> Ident {
-    Ident { name: p.as_str().to_string(), span: span(&p) }
+    Ident {
+        name: p.as_str().to_string(),
+        span: span(&p),
+    }
 }
 
 fn missing_ident(at: Span) -> Ident {
-    Ident { name: String::new(), span: at }
+    Ident {
+        name: String::new(),
+        span: at,
+    }
 }
 
 fn quantity(p: Pair<'_, Rule>) -> Quantity {
     let sp = span(&p);
     let mut inner = p.into_inner();
     let num = inner.next();
-    let text = num.as_ref().map_or(String::new(), |n| n.as_str().to_string());
+    let text = num
+        .as_ref()
+        .map_or(String::new(), |n| n.as_str().to_string());
     let value = text.parse::<f64>().unwrap_or(f64::NAN);
     let unit = inner.next().and_then(|u| Unit::parse(u.as_str()));
-    Quantity { text, value, unit, span: sp }
+    Quantity {
+        text,
+        value,
+        unit,
+        span: sp,
+    }
 }
 
 fn missing_quantity(at: Span) -> Quantity {
-    Quantity { text: String::new(), value: f64::NAN, unit: None, span: at }
+    Quantity {
+        text: String::new(),
+        value: f64::NAN,
+        unit: None,
+        span: at,
+    }
 }
 
 fn integer(p: Pair<'_, Rule>) -> Integer {
-    Integer { value: p.as_str().parse().unwrap_or(i64::MAX), span: span(&p) }
+    Integer {
+        value: p.as_str().parse().unwrap_or(i64::MAX),
+        span: span(&p),
+    }
 }
 
 struct Kids<'a> {
@@ -489,7 +561,13 @@ struct Kids<'a> {
 impl<'a> Kids<'a> {
     fn of(p: Pair<'a, Rule>) -> (Span, Kids<'a>) {
         let sp = span(&p);
-        (sp, Kids { it: p.into_inner(), at: sp })
+        (
+            sp,
+            Kids {
+                it: p.into_inner(),
+                at: sp,
+            },
+        )
     }
     fn next(&mut self) -> Option<Pair<'a, Rule>> {
         self.it.next()
@@ -498,7 +576,8 @@ impl<'a> Kids<'a> {
         self.next().map_or_else(|| missing_ident(self.at), ident)
     }
     fn quantity(&mut self) -> Quantity {
-        self.next().map_or_else(|| missing_quantity(self.at), quantity)
+        self.next()
+            .map_or_else(|| missing_quantity(self.at), quantity)
     }
 }
 
@@ -506,7 +585,11 @@ fn build_policy(p: Pair<'_, Rule>) -> PolicyAst {
     let (sp, mut k) = Kids::of(p);
     let name = k.ident();
     let items = k.it.filter_map(build_item).collect();
-    PolicyAst { name, items, span: sp }
+    PolicyAst {
+        name,
+        items,
+        span: sp,
+    }
 }
 
 fn build_item(p: Pair<'_, Rule>) -> Option<Item> {
@@ -518,13 +601,22 @@ fn build_item(p: Pair<'_, Rule>) -> Option<Item> {
         Rule::sensor => {
             let name = k.ident();
             let items = k.it.filter_map(build_sensor_item).collect();
-            Item::Sensor(SensorAst { name, items, span: sp })
+            Item::Sensor(SensorAst {
+                name,
+                items,
+                span: sp,
+            })
         }
         Rule::input => {
             let name = k.ident();
             let lo = k.quantity();
             let hi = k.quantity();
-            Item::Input(InputAst { name, lo, hi, span: sp })
+            Item::Input(InputAst {
+                name,
+                lo,
+                hi,
+                span: sp,
+            })
         }
         Rule::switch => Item::Switch(k.ident(), sp),
         Rule::actuator => Item::Actuator(ActuatorAst {
@@ -535,15 +627,27 @@ fn build_item(p: Pair<'_, Rule>) -> Option<Item> {
         Rule::mode => {
             let name = k.ident();
             let items = k.it.filter_map(build_mode_item).collect();
-            Item::Mode(ModeAst { name, items, span: sp })
+            Item::Mode(ModeAst {
+                name,
+                items,
+                span: sp,
+            })
         }
         Rule::start => Item::Start(k.ident(), sp),
         Rule::transition => {
             let from = k.ident();
             let to = k.ident();
-            let guard = k.next().map_or(ExprAst::Name(missing_ident(sp)), build_expr);
+            let guard = k
+                .next()
+                .map_or(ExprAst::Name(missing_ident(sp)), build_expr);
             let dwell = k.next().map(|d| Kids::of(d).1.quantity());
-            Item::Transition(TransitionAst { from, to, guard, dwell, span: sp })
+            Item::Transition(TransitionAst {
+                from,
+                to,
+                guard,
+                dwell,
+                span: sp,
+            })
         }
         Rule::assure => Item::Assure(AssureAst {
             items: k.it.filter_map(build_assure_item).collect(),
@@ -559,14 +663,17 @@ fn build_sensor_item(p: Pair<'_, Rule>) -> Option<SensorItem> {
     Some(match rule {
         Rule::track => {
             let name = k.ident();
-            let points = k
-                .it
-                .map(|pt| {
+            let points =
+                k.it.map(|pt| {
                     let (_, mut pk) = Kids::of(pt);
                     (pk.quantity(), pk.quantity())
                 })
                 .collect();
-            SensorItem::Track { name, points, span: sp }
+            SensorItem::Track {
+                name,
+                points,
+                span: sp,
+            }
         }
         Rule::filter => SensorItem::Filter(k.quantity(), sp),
         Rule::open_reads => SensorItem::OpenReads(k.quantity(), sp),
@@ -581,12 +688,18 @@ fn build_actuator_item(p: Pair<'_, Rule>) -> Option<ActuatorItem> {
     Some(match rule {
         Rule::act_default => ActuatorItem::Default(k.quantity(), sp),
         Rule::act_idle => ActuatorItem::Idle(k.quantity(), sp),
-        Rule::act_open => {
-            ActuatorItem::Open { from: k.quantity(), to: k.quantity(), time: k.quantity(), span: sp }
-        }
-        Rule::act_spring => {
-            ActuatorItem::Spring { from: k.quantity(), to: k.quantity(), time: k.quantity(), span: sp }
-        }
+        Rule::act_open => ActuatorItem::Open {
+            from: k.quantity(),
+            to: k.quantity(),
+            time: k.quantity(),
+            span: sp,
+        },
+        Rule::act_spring => ActuatorItem::Spring {
+            from: k.quantity(),
+            to: k.quantity(),
+            time: k.quantity(),
+            span: sp,
+        },
         Rule::act_feedback => ActuatorItem::Feedback(k.ident(), sp),
         _ => return None,
     })
@@ -594,7 +707,11 @@ fn build_actuator_item(p: Pair<'_, Rule>) -> Option<ActuatorItem> {
 
 fn build_track_ref(p: Pair<'_, Rule>) -> TrackRefAst {
     let (sp, mut k) = Kids::of(p);
-    TrackRefAst { sensor: k.ident(), track: k.ident(), span: sp }
+    TrackRefAst {
+        sensor: k.ident(),
+        track: k.ident(),
+        span: sp,
+    }
 }
 
 fn build_fault(sp: Span, mut k: Kids<'_>) -> FaultAst {
@@ -619,12 +736,21 @@ fn build_fault(sp: Span, mut k: Kids<'_>) -> FaultAst {
                     fault.debounce = Some(match rule {
                         Rule::count => {
                             let mut ints = dk.it.map(integer);
-                            let zero = Integer { value: 0, span: dsp };
+                            let zero = Integer {
+                                value: 0,
+                                span: dsp,
+                            };
                             let up = ints.next().unwrap_or(zero.clone());
                             let down = ints.next().unwrap_or(zero.clone());
                             let fail = ints.next().unwrap_or(zero);
                             let pass = ints.next();
-                            DebounceAst::Count { up, down, fail, pass, span: dsp }
+                            DebounceAst::Count {
+                                up,
+                                down,
+                                fail,
+                                pass,
+                                span: dsp,
+                            }
                         }
                         _ => DebounceAst::For(dk.quantity(), dsp),
                     });
@@ -672,13 +798,27 @@ fn build_assure_item(p: Pair<'_, Rule>) -> Option<AssureItem> {
     let (sp, mut k) = Kids::of(p);
     Some(match rule {
         Rule::faults_scope => AssureItem::Faults(k.ident(), sp),
-        Rule::req_excess => AssureItem::Excess { below: k.quantity(), within: k.quantity(), span: sp },
+        Rule::req_excess => AssureItem::Excess {
+            below: k.quantity(),
+            within: k.quantity(),
+            span: sp,
+        },
         Rule::req_never => {
             let above = k.quantity();
-            let unless_driver = k.next().map(quantity);
-            AssureItem::Never { above, unless_driver, span: sp }
+            let unless = k.next().map(|who| {
+                let who = ident(who);
+                (who, k.quantity())
+            });
+            AssureItem::Never {
+                above,
+                unless,
+                span: sp,
+            }
         }
-        Rule::req_idle => AssureItem::Idle { within: k.quantity(), span: sp },
+        Rule::req_idle => AssureItem::Idle {
+            within: k.quantity(),
+            span: sp,
+        },
         _ => return None,
     })
 }
@@ -694,7 +834,10 @@ fn build_expr(p: Pair<'_, Rule>) -> ExprAst {
                 .map(build_expr)
                 .collect();
             if parts.len() == 1 {
-                parts.into_iter().next().unwrap_or(ExprAst::Name(missing_ident(sp)))
+                parts
+                    .into_iter()
+                    .next()
+                    .unwrap_or(ExprAst::Name(missing_ident(sp)))
             } else if rule == Rule::expr {
                 ExprAst::Or(parts, sp)
             } else {
@@ -705,7 +848,9 @@ fn build_expr(p: Pair<'_, Rule>) -> ExprAst {
             let mut inner = p.into_inner();
             match inner.next() {
                 Some(c) if c.as_rule() == Rule::kw_not => {
-                    let e = inner.next().map_or(ExprAst::Name(missing_ident(sp)), build_expr);
+                    let e = inner
+                        .next()
+                        .map_or(ExprAst::Name(missing_ident(sp)), build_expr);
                     ExprAst::Not(Box::new(e), sp)
                 }
                 Some(c) if c.as_rule() == Rule::expr => ExprAst::Paren(Box::new(build_expr(c)), sp),
@@ -723,38 +868,52 @@ fn build_expr(p: Pair<'_, Rule>) -> ExprAst {
         Rule::comparison => {
             let mut inner = p.into_inner();
             let term = inner.next().map(build_term);
-            let cmp = inner.next().and_then(|c| c.into_inner().next()).map(build_cmp);
+            let cmp = inner
+                .next()
+                .and_then(|c| c.into_inner().next())
+                .map(build_cmp);
             match (term, cmp) {
                 (Some(t), Some(c)) => ExprAst::Compare(t, c, sp),
                 _ => ExprAst::Name(missing_ident(sp)),
             }
         }
-        Rule::name_atom => {
-            ExprAst::Name(p.into_inner().next().map_or(missing_ident(sp), ident))
-        }
+        Rule::name_atom => ExprAst::Name(p.into_inner().next().map_or(missing_ident(sp), ident)),
         _ => ExprAst::Name(missing_ident(sp)),
     }
 }
 
 fn build_signal(p: Pair<'_, Rule>) -> SignalAst {
     let sp = span(&p);
-    SignalAst { parts: p.into_inner().map(ident).collect(), span: sp }
+    SignalAst {
+        parts: p.into_inner().map(ident).collect(),
+        span: sp,
+    }
 }
 
 fn build_term(p: Pair<'_, Rule>) -> TermAst {
     let sp = span(&p);
     let Some(t) = p.into_inner().next() else {
-        return TermAst::Signal(SignalAst { parts: Vec::new(), span: sp });
+        return TermAst::Signal(SignalAst {
+            parts: Vec::new(),
+            span: sp,
+        });
     };
     let rule = t.as_rule();
     let tsp = span(&t);
     match rule {
         Rule::abs_diff | Rule::diff => {
             let mut s = t.into_inner().map(build_signal);
-            let empty = SignalAst { parts: Vec::new(), span: tsp };
+            let empty = SignalAst {
+                parts: Vec::new(),
+                span: tsp,
+            };
             let a = s.next().unwrap_or(empty.clone());
             let b = s.next().unwrap_or(empty);
-            if rule == Rule::abs_diff { TermAst::AbsDiff(a, b, tsp) } else { TermAst::Diff(a, b, tsp) }
+            if rule == Rule::abs_diff {
+                TermAst::AbsDiff(a, b, tsp)
+            } else {
+                TermAst::Diff(a, b, tsp)
+            }
         }
         _ => TermAst::Signal(build_signal(t)),
     }
@@ -783,8 +942,16 @@ mod tests {
         assert!(diags.is_empty(), "{diags:?}");
         let ast = ast.expect("tree");
         assert_eq!(ast.name.name, "van_throttle");
-        let faults = ast.items.iter().filter(|i| matches!(i, Item::Fault(_))).count();
-        let transitions = ast.items.iter().filter(|i| matches!(i, Item::Transition(_))).count();
+        let faults = ast
+            .items
+            .iter()
+            .filter(|i| matches!(i, Item::Fault(_)))
+            .count();
+        let transitions = ast
+            .items
+            .iter()
+            .filter(|i| matches!(i, Item::Transition(_)))
+            .count();
         assert_eq!((faults, transitions), (10, 6));
     }
 
@@ -796,7 +963,9 @@ mod tests {
         let Some(Item::Transition(t)) = ast.and_then(|a| a.items.into_iter().next()) else {
             panic!("no transition")
         };
-        let ExprAst::Or(parts, _) = t.guard else { panic!("not an or") };
+        let ExprAst::Or(parts, _) = t.guard else {
+            panic!("not an or")
+        };
         assert!(matches!(parts[0], ExprAst::Name(_)));
         assert!(matches!(&parts[1], ExprAst::And(v, _) if matches!(v[1], ExprAst::Not(..))));
     }
@@ -809,7 +978,9 @@ mod tests {
         let Some(Item::Transition(t)) = ast.and_then(|a| a.items.into_iter().next()) else {
             panic!("no transition")
         };
-        let ExprAst::Or(parts, _) = t.guard else { panic!("not an or") };
+        let ExprAst::Or(parts, _) = t.guard else {
+            panic!("not an or")
+        };
         assert!(matches!(&parts[0], ExprAst::Name(i) if i.name == "notable"));
     }
 
