@@ -115,7 +115,7 @@ pub fn did_you_mean<'a>(
 ) -> Option<&'a str> {
     let mut best: Option<(usize, &str)> = None;
     for c in candidates {
-        let d = strsim::levenshtein(name, c);
+        let d = strsim::damerau_levenshtein(name, c);
         let limit = (name.len().max(c.len()) / 3).max(1);
         if d <= limit && best.is_none_or(|(bd, _)| d < bd) {
             best = Some((d, c));

@@ -482,6 +482,21 @@ fn syntax_diagnostic(
 
 fn hint_for(src: &str, pos: usize, expected: &[&str]) -> String {
     let before = src[..pos].trim_end();
+    // A misspelt keyword: offer the nearest one the parser would have taken here.
+    let token: String = src[pos..]
+        .chars()
+        .take_while(|c| c.is_ascii_alphanumeric() || *c == '_')
+        .collect();
+    let keywords: Vec<&str> = expected
+        .iter()
+        .filter_map(|w| w.strip_prefix('`').and_then(|r| r.split(['`', ' ']).next()))
+        .filter(|k| k.chars().all(|c| c.is_ascii_alphabetic()))
+        .collect();
+    if !token.is_empty()
+        && let Some(k) = crate::diag::did_you_mean(&token, keywords.iter().copied())
+    {
+        return format!("did you mean `{k}`?");
+    }
     if expected.iter().any(|w| w.starts_with("a unit")) {
         return "every quantity carries its unit, e.g. `20 ms`, `4.5 V`, `35 %`, `25 %/s`".into();
     }
@@ -494,7 +509,7 @@ fn hint_for(src: &str, pos: usize, expected: &[&str]) -> String {
     {
         return "conditions combine fault names, `suspect(X.a)`, switches and comparisons like `pedal below 3 %` with `and`, `or`, `not`".into();
     }
-    "see the reference policy in DESIGN.md for the form of each line".into()
+    "README.md describes the form of each line of a policy".into()
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -502,8 +517,24 @@ fn hint_for(src: &str, pos: usize, expected: &[&str]) -> String {
 // children positionally; a child missing against the grammar would be a grammar bug, and the
 // builders degrade to empty values rather than panic.
 
+/// The pair's span without the white space and comments pest skipped at its end (a
+/// repetition that matched nothing still consumes the blank before it).
 fn span(p: &Pair<'_, Rule>) -> Span {
-    Span::of(&p.as_span())
+    let sp = p.as_span();
+    let mut text = sp.as_str();
+    loop {
+        let t = text.trim_end();
+        // The policy language has no strings, so `#` always starts a comment.
+        let last_line_start = t.rfind('\n').map_or(0, |i| i + 1);
+        match t[last_line_start..].find('#') {
+            Some(h) if last_line_start + h > 0 => text = &t[..last_line_start + h],
+            _ => {
+                text = t;
+                break;
+            }
+        }
+    }
+    Span::new(sp.start(), sp.start() + text.len())
 }
 
 fn ident(p: Pair<'_, Rule>) -> Ident {
