@@ -353,6 +353,10 @@ struct Line {
     term: Term,
 }
 
+/// A line while a question is being collected: key, term as first written, thresholds
+/// (with any finite domain bounds and pin), and the pin of a merged value.
+type Draft = (LineKey, Term, Vec<f64>, Option<(Vec<TrackRef>, f64)>);
+
 /// The variables of one question.
 struct Space<'m> {
     model: &'m Model,
@@ -369,7 +373,7 @@ impl<'m> Space<'m> {
         let mut switches = Vec::new();
         let mut suspects = Vec::new();
         // (key, term as first seen, thresholds on the line, pin)
-        let mut lines: Vec<(LineKey, Term, Vec<f64>, Option<(Vec<TrackRef>, f64)>)> = Vec::new();
+        let mut lines: Vec<Draft> = Vec::new();
         for e in exprs {
             e.for_each_atom(&mut |a| match a {
                 Expr::Fault { fault, .. } => faults.push(*fault),
@@ -456,10 +460,7 @@ impl<'m> Space<'m> {
 }
 
 /// Finds the line of a term among those already seen (so `b - a` joins `a - b`).
-fn line_of(
-    term: &Term,
-    seen: &[(LineKey, Term, Vec<f64>, Option<(Vec<TrackRef>, f64)>)],
-) -> (LineKey, View) {
+fn line_of(term: &Term, seen: &[Draft]) -> (LineKey, View) {
     match *term {
         Term::Signal { signal } => (LineKey::Single(signal), View::Same),
         Term::Diff { a, b } | Term::AbsDiff { a, b } => {
