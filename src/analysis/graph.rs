@@ -513,6 +513,22 @@ impl<'m> Analysis<'m> {
                             } else {
                                 ""
                             };
+                            // Fail-safe order tries the more conservative reaction first;
+                            // say which way round this pair is.
+                            let hint = if raises(self.m, ej.to, ei.to) {
+                                format!(
+                                    "the winner `{}` is less conservative than `{}`: check the order, or make the guards exclusive",
+                                    self.mode(ei.to),
+                                    self.mode(ej.to)
+                                )
+                            } else if raises(self.m, ei.to, ej.to) {
+                                format!(
+                                    "the more conservative `{}` wins, as fail-safe order asks; make the guards exclusive if either must not fire here",
+                                    self.mode(ei.to)
+                                )
+                            } else {
+                                "neither target is more conservative: make the guards exclusive, or order them deliberately".to_string()
+                            };
                             self.out.push(
                                 Finding::new(
                                     FindingKind::OrderDependentOverlap,
@@ -522,7 +538,7 @@ impl<'m> Analysis<'m> {
                                         self.mode(mode),
                                         compact(&a)
                                     ),
-                                    "if the order is deliberate, say so in a comment; otherwise make the guards exclusive",
+                                    hint,
                                 )
                                 .with_related(self.span(ei), format!("`{ni}` wins")),
                             );
@@ -605,10 +621,15 @@ impl<'m> Analysis<'m> {
                     })
                     .map(|(f, _)| format!("`{}`", self.fault(*f)))
                     .collect();
-                let mut hint = format!(
-                    "require them clear in the guard, e.g. `not {}`",
-                    self.fault(open[0].0)
-                );
+                let first = open[0].0;
+                let example = match m.faults.get(first).and_then(|f| f.suspects.first()) {
+                    Some(t) => format!(
+                        "not suspect({})",
+                        guards::signal_name(m, crate::model::Signal::Track { track: *t })
+                    ),
+                    None => format!("not {}", self.fault(first)),
+                };
+                let mut hint = format!("require them clear in the guard, e.g. `{example}`");
                 if !latched.is_empty() {
                     hint.push_str(&format!(
                         "; {} latch, so once required clear the transition waits for the next key on",
@@ -1457,5 +1478,60 @@ mod tests {
             "{text}"
         );
         assert!(text.contains("never entered"), "{text}");
+    }
+}
+
+#[cfg(test)]
+mod reference {
+    use super::*;
+
+    /// What `analyse` says on the reference policy. Judged by hand (see the analysis report):
+    /// both errors are real gaps of rev 1; the overlaps are deliberate fail-safe ordering.
+    #[test]
+    fn findings_on_the_van_policy() {
+        let src = include_str!("../../scenarios/van/van_throttle.limp");
+        let m = crate::model::lower(src).expect("reference policy lowers");
+        let fs = analyse(&m);
+        let line = |s: Span| src[..s.start].matches('\n').count() + 1;
+        let got: Vec<(usize, &str)> = fs.iter().map(|f| (line(f.span), f.kind.code())).collect();
+        assert_eq!(
+            got,
+            vec![
+                (44, "missing-transition"),
+                (52, "order-dependent-overlap"),
+                (53, "order-dependent-overlap"),
+                (53, "order-dependent-overlap"),
+                (54, "order-dependent-overlap"),
+                (55, "order-dependent-overlap"),
+                (56, "order-dependent-overlap"),
+                (56, "authority-under-fault"),
+            ]
+        );
+        assert!(
+            fs[0].message.contains("`brake_conflict`") && fs[0].message.contains("`reduced_power`")
+        );
+        let auth = &fs[7];
+        assert_eq!(
+            auth.message,
+            "`idle_only -> normal` raises authority (idle_request up to 12 % to pedal up to 100 %) while `pedal_a_low`, `pedal_a_high`, `pedal_b_low`, `pedal_b_high` that led into `idle_only` may still be set"
+        );
+        assert_eq!(
+            auth.hint,
+            "require them clear in the guard, e.g. `not suspect(pedal.a)`"
+        );
+        // Within reduced_power the way back to normal and the way on to idle_only are
+        // exclusive only through suspect(): pedal_disagree suspects both tracks.
+        assert!(!fs.iter().any(|f| {
+            f.kind == FindingKind::OrderDependentOverlap
+                && f.message
+                    .contains("`reduced_power -> idle_only` and `reduced_power -> normal`")
+        }));
+        // Every overlap here has the safer target winning.
+        for f in fs
+            .iter()
+            .filter(|f| f.kind == FindingKind::OrderDependentOverlap)
+        {
+            assert!(f.hint.contains("as fail-safe order asks"), "{}", f.hint);
+        }
     }
 }

@@ -428,9 +428,14 @@ impl<'m> Space<'m> {
                         .map_or((f64::NEG_INFINITY, f64::INFINITY), |i| (i.lo, i.hi)),
                     _ => (f64::NEG_INFINITY, f64::INFINITY),
                 };
+                let mut reps = representatives(ts, lo, hi);
+                // Order only decides which witness is reported first: values a sensor
+                // usually shows come before the extrapolated ones.
+                let (plo, phi) = usual_range(model, key);
+                reps.sort_by_key(|v| !(plo..=phi).contains(v));
                 Line {
                     key,
-                    reps: representatives(ts, lo, hi),
+                    reps,
                     pin,
                     term,
                 }
@@ -478,6 +483,18 @@ fn line_of(term: &Term, seen: &[Draft]) -> (LineKey, View) {
             };
             (key, view)
         }
+    }
+}
+
+/// Where a line's values usually lie: 0..100 % of travel (a difference -100..100 %), 0 V to
+/// the supply for volts.
+fn usual_range(model: &Model, key: LineKey) -> (f64, f64) {
+    let volts = |s: Signal| matches!(s, Signal::TrackVolts { .. });
+    match key {
+        LineKey::Single(s) if volts(s) => (0.0, model.supply),
+        LineKey::Single(_) => (0.0, 100.0),
+        LineKey::Pair(a, _) if volts(a) => (-model.supply, model.supply),
+        LineKey::Pair(..) => (-100.0, 100.0),
     }
 }
 
