@@ -54,7 +54,15 @@ pub enum ActuatorFault {
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 #[serde(tag = "at", rename_all = "snake_case")]
 pub enum Injection {
-    Track { track: TrackRef, fault: TrackFault },
-    Sensor { sensor: SensorId, fault: SensorFault },
-    Actuator { fault: ActuatorFault },
+    Track {
+        track: TrackRef,
+        fault: TrackFault,
+    },
+    Sensor {
+        sensor: SensorId,
+        fault: SensorFault,
+    },
+    Actuator {
+        fault: ActuatorFault,
+    },
 }
