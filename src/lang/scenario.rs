@@ -2,6 +2,10 @@
 //! with its byte span, every number with its text as written) and the translation of pest's
 //! errors into our diagnostics, with line-blanking recovery so one run reports many errors.
 
+// A scenario's tree holds tens of nodes that keep every number's text for the printer; boxing
+// the larger variants would add indirection for no measurable saving.
+#![allow(clippy::large_enum_variant)]
+
 use crate::diag::Diagnostic;
 use crate::lang::Span;
 use pest::Parser;
@@ -109,9 +113,15 @@ pub struct StrLit {
 #[serde(tag = "item", rename_all = "snake_case")]
 pub enum Item {
     /// `policy "path"`: the policy file, relative to the scenario file.
-    Policy { path: StrLit, span: Span },
+    Policy {
+        path: StrLit,
+        span: Span,
+    },
     /// `length T`: how long the run lasts.
-    Length { length: Quantity, span: Span },
+    Length {
+        length: Quantity,
+        span: Span,
+    },
     Event(Event),
     Expect(Expect),
 }
@@ -139,10 +149,22 @@ pub struct Event {
 pub enum ActionAst {
     /// `NAME X %`, `NAME X % over T` or `NAME on|off`: what NAME is (sensor, input or switch)
     /// the policy decides.
-    Set { name: Ident, value: SetValue, span: Span },
-    Break { target: Target, fault: FaultAst, span: Span },
+    Set {
+        name: Ident,
+        value: SetValue,
+        span: Span,
+    },
+    Break {
+        target: Target,
+        fault: FaultAst,
+        span: Span,
+    },
     /// `mend TARGET` or `mend TARGET KIND`.
-    Mend { target: Target, kind: Option<FaultKindAst>, span: Span },
+    Mend {
+        target: Target,
+        kind: Option<FaultKindAst>,
+        span: Span,
+    },
     /// `key on` / `key off`.
     Key { on: OnOff, span: Span },
 }
@@ -161,8 +183,13 @@ impl ActionAst {
 #[derive(Clone, Debug, PartialEq, Serialize)]
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum SetValue {
-    Level { value: Quantity, over: Option<Quantity> },
-    Switch { on: OnOff },
+    Level {
+        value: Quantity,
+        over: Option<Quantity>,
+    },
+    Switch {
+        on: OnOff,
+    },
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
@@ -286,12 +313,30 @@ pub struct Expect {
 #[derive(Clone, Debug, PartialEq, Serialize)]
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum ExpectAst {
-    FaultBy { fault: Ident, by: Quantity },
-    FaultNever { fault: Ident },
-    ModeBy { mode: Ident, by: Quantity },
-    ModeNever { mode: Ident },
-    /// `opening at most|least X from T1 to T2`.
-    Opening { bound: Bound, x: Quantity, from: Quantity, to: Quantity },
+    FaultBy {
+        fault: Ident,
+        by: Quantity,
+    },
+    FaultNever {
+        fault: Ident,
+    },
+    ModeBy {
+        mode: Ident,
+        by: Quantity,
+    },
+    ModeNever {
+        mode: Ident,
+    },
+    /// `opening at most|least X from T1 to T2` (boxed: it is much the largest variant).
+    Opening(Box<OpeningAst>),
+}
+
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct OpeningAst {
+    pub bound: Bound,
+    pub x: Quantity,
+    pub from: Quantity,
+    pub to: Quantity,
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
@@ -331,9 +376,10 @@ pub fn parse(src: &str) -> (Option<ScenarioAst>, Vec<Diagnostic>) {
             (InputLocation::Span((p, _)), ErrorVariant::ParsingError { positives, .. }) => {
                 (*p, positives.clone())
             }
-            (InputLocation::Pos(p) | InputLocation::Span((p, _)), ErrorVariant::CustomError { .. }) => {
-                (*p, Vec::new())
-            }
+            (
+                InputLocation::Pos(p) | InputLocation::Span((p, _)),
+                ErrorVariant::CustomError { .. },
+            ) => (*p, Vec::new()),
         };
         let (pos, line_end) = match previous_line_end(&text, pos, &positives) {
             Some(end) => (end, true),
@@ -344,7 +390,10 @@ pub fn parse(src: &str) -> (Option<ScenarioAst>, Vec<Diagnostic>) {
         // report the same missing `{`), when the bad line is already blank (the error is at
         // the end of the file), or when the budget is spent.
         let header = positives.iter().any(|r| {
-            matches!(r, Rule::kw_scenario | Rule::scenario_name | Rule::open_brace | Rule::file)
+            matches!(
+                r,
+                Rule::kw_scenario | Rule::scenario_name | Rule::open_brace | Rule::file
+            )
         });
         if header || diags.len() >= MAX_SYNTAX_ERRORS || !blank_line(&mut text, pos) {
             return (None, diags);
@@ -374,7 +423,17 @@ fn blank_line(text: &mut String, pos: usize) -> bool {
 /// gives the end of its content (comments excluded).
 fn previous_line_end(text: &str, pos: usize, positives: &[Rule]) -> Option<usize> {
     use Rule::*;
-    let starts_line = [event, expect, policy_decl, length_decl, close_brace, kw_at, kw_expect, kw_scenario, file];
+    let starts_line = [
+        event,
+        expect,
+        policy_decl,
+        length_decl,
+        close_brace,
+        kw_at,
+        kw_expect,
+        kw_scenario,
+        file,
+    ];
     if positives.iter().any(|r| starts_line.contains(r)) {
         return None;
     }
@@ -435,7 +494,9 @@ fn syntax_diagnostic(text: &str, pos: usize, line_end: bool, positives: &[Rule])
     } else {
         format!("unexpected {found}")
     };
-    Diagnostic::error("syntax", span, message).with_label(label).with_hint(syntax_hint(positives, text, pos))
+    Diagnostic::error("syntax", span, message)
+        .with_label(label)
+        .with_hint(syntax_hint(positives, text, pos))
 }
 
 /// The token at `pos` for messages: a word, a quoted string's start, one character, or the
@@ -444,11 +505,17 @@ fn found_at(text: &str, pos: usize) -> (Span, String) {
     let pos = text.floor_char_boundary(pos.min(text.len()));
     let rest = &text[pos..];
     let Some(first) = rest.chars().next() else {
-        return (Span::new(text.len(), text.len()), "the end of the file".to_string());
+        return (
+            Span::new(text.len(), text.len()),
+            "the end of the file".to_string(),
+        );
     };
-    let is_word = |c: char| c.is_ascii_alphanumeric() || c == '_' || c == '.' || c == '+' || c == '-';
+    let is_word =
+        |c: char| c.is_ascii_alphanumeric() || c == '_' || c == '.' || c == '+' || c == '-';
     let len = if is_word(first) {
-        rest.char_indices().find(|&(_, c)| !is_word(c)).map_or(rest.len(), |(i, _)| i)
+        rest.char_indices()
+            .find(|&(_, c)| !is_word(c))
+            .map_or(rest.len(), |(i, _)| i)
     } else {
         first.len_utf8()
     };
@@ -485,9 +552,9 @@ fn expected_phrases(rule: Rule) -> &'static [&'static str] {
         length_decl | kw_length => &["`length`"],
         event | kw_at => &["an event `at TIME ...`"],
         expect | kw_expect => &["an expectation `expect ...`"],
-        break_ev | mend_ev | key_ev | set_ev | kw_break | kw_mend | kw_key => {
-            &["an action such as `pedal 20 %`, `break pedal.a open`, `mend pedal.a`, `key off` or `brake on`"]
-        }
+        break_ev | mend_ev | key_ev | set_ev | kw_break | kw_mend | kw_key => &[
+            "an action such as `pedal 20 %`, `break pedal.a open`, `mend pedal.a`, `key off` or `brake on`",
+        ],
         ramp | kw_over => &["`over`"],
         on_off => &["`on`", "`off`"],
         kw_on => &["`on`"],
@@ -533,7 +600,15 @@ fn syntax_hint(positives: &[Rule], text: &str, pos: usize) -> String {
     let after_number = text[..text.floor_char_boundary(pos.min(text.len()))]
         .trim_end()
         .ends_with(|c: char| c.is_ascii_digit());
-    if after_number {
+    let line_start = text[..text.floor_char_boundary(pos.min(text.len()))]
+        .rfind('\n')
+        .map_or(0, |i| i + 1);
+    let line_before = &text[line_start..text.floor_char_boundary(pos.min(text.len()))];
+    if line_before.split_whitespace().any(|w| w == "mend") && has(&[event, expect, close_brace]) {
+        "`mend TARGET` mends every fault on the target; `mend TARGET KIND` names the kind only, \
+         without its parameters, e.g. `mend pedal.a offset`"
+            .into()
+    } else if after_number {
         "every quantity carries its unit: `ms`, `s` or `us` for times, `%` for positions, `V` or `mV` for voltages".into()
     } else if has(&[fault_form, f_open, f_stuck, f_offset]) {
         "track faults: `open`, `short ground`, `short supply`, `stuck`, `offset +0.3 V`, `gain 90 %`, \
@@ -548,7 +623,13 @@ fn syntax_hint(positives: &[Rule], text: &str, pos: usize) -> String {
         "a sensor or an input takes a position such as `pedal 20 %` (ramped: `pedal 20 % over 300 ms`); \
          a switch takes `on` or `off`"
             .into()
-    } else if has(&[e_fault_by, e_mode_by, e_opening, fault_ref, mode_ref, kw_never, bound]) {
+    } else if has(&[on_off]) {
+        "write `on` or `off`".into()
+    } else if has(&[time]) {
+        "a time is a number and its unit, e.g. `200 ms`, `1.05 s` or `500 us`".into()
+    } else if has(&[
+        e_fault_by, e_mode_by, e_opening, fault_ref, mode_ref, kw_never, bound,
+    ]) {
         "expectations: `fault F by T`, `fault never F`, `mode M by T`, `mode never M`, \
          `opening at most|least X % from T1 to T2`"
             .into()
@@ -579,7 +660,10 @@ fn comments(text: &str) -> Vec<Comment> {
         let i = strip_comment(line).len();
         if i < line.len() {
             let body = line[i..].trim_end_matches(['\n', '\r']);
-            out.push(Comment { text: body.to_string(), span: Span::new(offset + i, offset + i + body.len()) });
+            out.push(Comment {
+                text: body.to_string(),
+                span: Span::new(offset + i, offset + i + body.len()),
+            });
         }
         offset += line.len();
     }
@@ -594,7 +678,10 @@ fn span(p: &Pair<'_, Rule>) -> Span {
 }
 
 fn ident(p: &Pair<'_, Rule>) -> Ident {
-    Ident { text: p.as_str().to_string(), span: span(p) }
+    Ident {
+        text: p.as_str().to_string(),
+        span: span(p),
+    }
 }
 
 fn build_file(file: Pair<'_, Rule>, text: &str) -> Option<ScenarioAst> {
@@ -610,21 +697,32 @@ fn build_file(file: Pair<'_, Rule>, text: &str) -> Option<ScenarioAst> {
                 let lit = p.into_inner().find(|q| q.as_rule() == Rule::string)?;
                 let body = lit.clone().into_inner().next()?;
                 items.push(Item::Policy {
-                    path: StrLit { value: body.as_str().to_string(), span: span(&lit) },
+                    path: StrLit {
+                        value: body.as_str().to_string(),
+                        span: span(&lit),
+                    },
                     span: s,
                 });
             }
             Rule::length_decl => {
                 let s = span(&p);
                 let q = p.into_inner().find(|q| q.as_rule() == Rule::time)?;
-                items.push(Item::Length { length: quantity(q)?, span: s });
+                items.push(Item::Length {
+                    length: quantity(q)?,
+                    span: s,
+                });
             }
             Rule::event => items.push(Item::Event(event(p)?)),
             Rule::expect => items.push(Item::Expect(expect(p)?)),
             _ => {}
         }
     }
-    Some(ScenarioAst { name: name?, items, comments: comments(text), span: sp })
+    Some(ScenarioAst {
+        name: name?,
+        items,
+        comments: comments(text),
+        span: sp,
+    })
 }
 
 fn quantity(p: Pair<'_, Rule>) -> Option<Quantity> {
@@ -635,7 +733,11 @@ fn quantity(p: Pair<'_, Rule>) -> Option<Quantity> {
     let unit_text = text[n..].trim_start();
     let unit = (!unit_text.is_empty()).then(|| {
         let start = sp.start + text.len() - unit_text.len();
-        UnitText { text: unit_text.to_string(), unit: Unit::parse(unit_text), span: Span::new(start, sp.end) }
+        UnitText {
+            text: unit_text.to_string(),
+            unit: Unit::parse(unit_text),
+            span: Span::new(start, sp.end),
+        }
     });
     // The grammar admits only a sign, digits, one point and an exponent, which `f64` parses;
     // an overflowing exponent gives an infinity the resolver reports.
@@ -658,7 +760,11 @@ fn number_len(s: &str) -> usize {
         }
         i
     };
-    let mut i = if matches!(b.first(), Some(b'+' | b'-')) { 1 } else { 0 };
+    let mut i = if matches!(b.first(), Some(b'+' | b'-')) {
+        1
+    } else {
+        0
+    };
     i = digits(i);
     if i + 1 < b.len() && b[i] == b'.' && b[i + 1].is_ascii_digit() {
         i = digits(i + 1);
@@ -680,11 +786,18 @@ fn target(p: Pair<'_, Rule>) -> Option<Target> {
     let mut inner = p.into_inner();
     let base = ident(&inner.next()?);
     let track = inner.next().map(|t| ident(&t));
-    Some(Target { base, track, span: sp })
+    Some(Target {
+        base,
+        track,
+        span: sp,
+    })
 }
 
 fn on_off(p: &Pair<'_, Rule>) -> OnOff {
-    OnOff { on: p.as_str() == "on", span: span(p) }
+    OnOff {
+        on: p.as_str() == "on",
+        span: span(p),
+    }
 }
 
 fn event(p: Pair<'_, Rule>) -> Option<Event> {
@@ -703,18 +816,31 @@ fn event(p: Pair<'_, Rule>) -> Option<Event> {
                 SetValue::Switch { on: on_off(&v) }
             } else {
                 let over = match parts.next() {
-                    Some(r) => Some(quantity(r.into_inner().find(|q| q.as_rule() == Rule::time)?)?),
+                    Some(r) => Some(quantity(
+                        r.into_inner().find(|q| q.as_rule() == Rule::time)?,
+                    )?),
                     None => None,
                 };
-                SetValue::Level { value: quantity(v)?, over }
+                SetValue::Level {
+                    value: quantity(v)?,
+                    over,
+                }
             };
-            ActionAst::Set { name, value, span: asp }
+            ActionAst::Set {
+                name,
+                value,
+                span: asp,
+            }
         }
         Rule::break_ev => {
             let mut parts = parts.filter(|q| q.as_rule() != Rule::kw_break);
             let target = target(parts.next()?)?;
             let fault = fault_form(parts.next()?)?;
-            ActionAst::Break { target, fault, span: asp }
+            ActionAst::Break {
+                target,
+                fault,
+                span: asp,
+            }
         }
         Rule::mend_ev => {
             let mut parts = parts.filter(|q| q.as_rule() != Rule::kw_mend);
@@ -723,15 +849,26 @@ fn event(p: Pair<'_, Rule>) -> Option<Event> {
                 Some(k) => Some(fault_kind(k)?),
                 None => None,
             };
-            ActionAst::Mend { target, kind, span: asp }
+            ActionAst::Mend {
+                target,
+                kind,
+                span: asp,
+            }
         }
         Rule::key_ev => {
             let v = parts.find(|q| q.as_rule() == Rule::on_off)?;
-            ActionAst::Key { on: on_off(&v), span: asp }
+            ActionAst::Key {
+                on: on_off(&v),
+                span: asp,
+            }
         }
         _ => return None,
     };
-    Some(Event { at, action, span: sp })
+    Some(Event {
+        at,
+        action,
+        span: sp,
+    })
 }
 
 fn fault_form(p: Pair<'_, Rule>) -> Option<FaultAst> {
@@ -739,23 +876,40 @@ fn fault_form(p: Pair<'_, Rule>) -> Option<FaultAst> {
     let f = p.into_inner().next()?;
     let rule = f.as_rule();
     // Keywords carry no data; the quantities and the bridged target do.
-    let mut data = f.into_inner().filter(|q| matches!(q.as_rule(), Rule::time | Rule::percent | Rule::volts | Rule::target));
+    let mut data = f.into_inner().filter(|q| {
+        matches!(
+            q.as_rule(),
+            Rule::time | Rule::percent | Rule::volts | Rule::target
+        )
+    });
     let form = match rule {
         Rule::f_open => FaultForm::Open,
         Rule::f_short_ground => FaultForm::ShortGround,
         Rule::f_short_supply => FaultForm::ShortSupply,
         Rule::f_stuck => FaultForm::Stuck,
-        Rule::f_offset => FaultForm::Offset { volts: quantity(data.next()?)? },
-        Rule::f_gain => FaultForm::Gain { percent: quantity(data.next()?)? },
-        Rule::f_bridged => FaultForm::Bridged { other: target(data.next()?)? },
+        Rule::f_offset => FaultForm::Offset {
+            volts: quantity(data.next()?)?,
+        },
+        Rule::f_gain => FaultForm::Gain {
+            percent: quantity(data.next()?)?,
+        },
+        Rule::f_bridged => FaultForm::Bridged {
+            other: target(data.next()?)?,
+        },
         Rule::f_intermittent => {
             let open = quantity(data.next()?)?;
             let every = quantity(data.next()?)?;
             FaultForm::Intermittent { open, every }
         }
-        Rule::f_ground_offset => FaultForm::GroundOffset { volts: quantity(data.next()?)? },
-        Rule::f_supply => FaultForm::Supply { volts: quantity(data.next()?)? },
-        Rule::f_weak => FaultForm::Weak { percent: quantity(data.next()?)? },
+        Rule::f_ground_offset => FaultForm::GroundOffset {
+            volts: quantity(data.next()?)?,
+        },
+        Rule::f_supply => FaultForm::Supply {
+            volts: quantity(data.next()?)?,
+        },
+        Rule::f_weak => FaultForm::Weak {
+            percent: quantity(data.next()?)?,
+        },
         Rule::f_spring_broken => FaultForm::SpringBroken,
         _ => return None,
     };
@@ -788,26 +942,42 @@ fn expect(p: Pair<'_, Rule>) -> Option<Expect> {
     let e = p.into_inner().find(|q| q.as_rule() != Rule::kw_expect)?;
     let rule = e.as_rule();
     let mut data = e.into_inner().filter(|q| {
-        matches!(q.as_rule(), Rule::fault_ref | Rule::mode_ref | Rule::time | Rule::percent | Rule::bound)
+        matches!(
+            q.as_rule(),
+            Rule::fault_ref | Rule::mode_ref | Rule::time | Rule::percent | Rule::bound
+        )
     });
     let kind = match rule {
-        Rule::e_fault_never => ExpectAst::FaultNever { fault: ident(&data.next()?) },
+        Rule::e_fault_never => ExpectAst::FaultNever {
+            fault: ident(&data.next()?),
+        },
         Rule::e_fault_by => {
             let fault = ident(&data.next()?);
-            ExpectAst::FaultBy { fault, by: quantity(data.next()?)? }
+            ExpectAst::FaultBy {
+                fault,
+                by: quantity(data.next()?)?,
+            }
         }
-        Rule::e_mode_never => ExpectAst::ModeNever { mode: ident(&data.next()?) },
+        Rule::e_mode_never => ExpectAst::ModeNever {
+            mode: ident(&data.next()?),
+        },
         Rule::e_mode_by => {
             let mode = ident(&data.next()?);
-            ExpectAst::ModeBy { mode, by: quantity(data.next()?)? }
+            ExpectAst::ModeBy {
+                mode,
+                by: quantity(data.next()?)?,
+            }
         }
         Rule::e_opening => {
             let b = data.next()?;
-            let bound = Bound { at_most: b.as_str() == "most", span: span(&b) };
+            let bound = Bound {
+                at_most: b.as_str() == "most",
+                span: span(&b),
+            };
             let x = quantity(data.next()?)?;
             let from = quantity(data.next()?)?;
             let to = quantity(data.next()?)?;
-            ExpectAst::Opening { bound, x, from, to }
+            ExpectAst::Opening(Box::new(OpeningAst { bound, x, from, to }))
         }
         _ => return None,
     };
@@ -833,10 +1003,26 @@ mod tests {
         assert_eq!(ast.name.text, "pedal_a_open");
         assert_eq!(ast.items.len(), 2 + 6 + 5);
         // The spans point at the text they came from.
-        assert_eq!(&REFERENCE[ast.name.span.start..ast.name.span.end], "pedal_a_open");
-        let Item::Event(ramp) = &ast.items[3] else { panic!("item 3 is an event") };
-        assert_eq!(&REFERENCE[ramp.span.start..ramp.span.end], "at 200 ms   pedal 35 % over 300 ms");
-        let ActionAst::Set { value: SetValue::Level { value, over: Some(over) }, .. } = &ramp.action else {
+        assert_eq!(
+            &REFERENCE[ast.name.span.start..ast.name.span.end],
+            "pedal_a_open"
+        );
+        let Item::Event(ramp) = &ast.items[3] else {
+            panic!("item 3 is an event")
+        };
+        assert_eq!(
+            &REFERENCE[ramp.span.start..ramp.span.end],
+            "at 200 ms   pedal 35 % over 300 ms"
+        );
+        let ActionAst::Set {
+            value:
+                SetValue::Level {
+                    value,
+                    over: Some(over),
+                },
+            ..
+        } = &ramp.action
+        else {
             panic!("a ramp")
         };
         assert_eq!((value.number.as_str(), value.value), ("35", 35.0));
@@ -855,7 +1041,10 @@ mod tests {
             ("pedal.a offset +0.3 V", FaultKind::Offset),
             ("pedal.a gain 90 %", FaultKind::Gain),
             ("pedal.a bridged pedal.b", FaultKind::Bridged),
-            ("pedal.a intermittent open 10 ms every 100 ms", FaultKind::Intermittent),
+            (
+                "pedal.a intermittent open 10 ms every 100 ms",
+                FaultKind::Intermittent,
+            ),
             ("pedal ground offset +0.2 V", FaultKind::GroundOffset),
             ("pedal supply 4.6 V", FaultKind::Supply),
             ("actuator stuck", FaultKind::Stuck),
@@ -867,7 +1056,11 @@ mod tests {
             let (ast, diags) = parse(&src);
             assert_eq!(diags, vec![], "{text}");
             let ast = ast.expect("parses");
-            let Item::Event(Event { action: ActionAst::Break { fault, .. }, .. }) = &ast.items[0] else {
+            let Item::Event(Event {
+                action: ActionAst::Break { fault, .. },
+                ..
+            }) = &ast.items[0]
+            else {
                 panic!("{text}: not a break")
             };
             assert_eq!(fault.form.kind(), kind, "{text}");
@@ -876,13 +1069,17 @@ mod tests {
 
     #[test]
     fn mend_takes_an_optional_kind() {
-        let (ast, diags) = parse("scenario s { at 1 s mend pedal.a short ground\n at 2 s mend pedal.a }");
+        let (ast, diags) =
+            parse("scenario s { at 1 s mend pedal.a short ground\n at 2 s mend pedal.a }");
         assert_eq!(diags, vec![]);
         let items = ast.expect("parses").items;
         let kinds: Vec<_> = items
             .iter()
             .map(|i| match i {
-                Item::Event(Event { action: ActionAst::Mend { kind, .. }, .. }) => kind.map(|k| k.kind),
+                Item::Event(Event {
+                    action: ActionAst::Mend { kind, .. },
+                    ..
+                }) => kind.map(|k| k.kind),
                 _ => panic!("not a mend"),
             })
             .collect();
@@ -902,7 +1099,11 @@ mod tests {
     fn syntax_errors_name_what_was_expected() {
         let e = errors("scenario s {\n  at 1 s break pedal.a melted\n}");
         assert_eq!(e.len(), 1);
-        assert!(e[0].starts_with("expected a fault such as `open`"), "{}", e[0]);
+        assert!(
+            e[0].starts_with("expected a fault such as `open`"),
+            "{}",
+            e[0]
+        );
         assert!(e[0].ends_with("found `melted`"), "{}", e[0]);
     }
 
@@ -911,9 +1112,15 @@ mod tests {
         let src = "scenario s {\n  at 1 s pedal\n  length 3 s\n  at 2 s break pedal.a melted\n  expect mode by 1 s\n}\n";
         let (ast, diags) = parse(src);
         assert_eq!(diags.len(), 3, "{diags:?}");
-        let lines: Vec<_> = diags.iter().map(|d| crate::diag::location("f", src, d.span.start)).collect();
+        let lines: Vec<_> = diags
+            .iter()
+            .map(|d| crate::diag::location("f", src, d.span.start))
+            .collect();
         assert_eq!(lines, vec!["f:2:15", "f:4:24", "f:5:15"]);
-        assert_eq!(diags[0].message, "expected a percentage such as `35 %`, `on` or `off`, found the end of the line");
+        assert_eq!(
+            diags[0].message,
+            "expected a percentage such as `35 %`, `on` or `off`, found the end of the line"
+        );
         // The good line survives in the recovered tree.
         assert_eq!(ast.expect("recovered").items.len(), 1);
     }
@@ -934,7 +1141,11 @@ mod tests {
     fn a_broken_header_reports_once() {
         let (ast, diags) = parse("scenario s\n  length 3 s\n  at 1 s key off\n}\n");
         assert_eq!(diags.len(), 1);
-        assert!(diags[0].message.starts_with("expected `{`"), "{}", diags[0].message);
+        assert!(
+            diags[0].message.starts_with("expected `{`"),
+            "{}",
+            diags[0].message
+        );
         assert!(ast.is_none());
     }
 
