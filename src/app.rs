@@ -209,3 +209,90 @@ pub fn graph(path: &str, format: Format) -> Outcome {
         exit: Exit::Holds,
     }
 }
+
+/// Options of `limpet run`, resolved from the flags.
+#[derive(Clone, Debug, Default)]
+pub struct RunConfig {
+    /// Overrides the policy path each script names.
+    pub policy: Option<String>,
+    pub sample_every: Option<crate::time::Time>,
+    pub format: Format,
+    /// Print only the verdicts.
+    pub quiet: bool,
+}
+
+/// A scenario read, resolved against its policy, and replayed.
+pub struct Replay {
+    pub scenario: Source,
+    pub model: Model,
+    pub trace: crate::sim::trace::Trace,
+}
+
+/// Reads a scenario and its policy (relative to the scenario file unless overridden),
+/// resolves and replays it. Errors come rendered, ready for standard error.
+pub fn replay(path: &str, policy_override: Option<&str>, opts: crate::sim::engine::RunOptions) -> Result<Replay, String> {
+    let src = Source::read(path)?;
+    let (ast, diags) = crate::lang::scenario::parse(&src.text);
+    let Some(ast) = ast else {
+        return Err(diag::render(&src.path, &src.text, &diags));
+    };
+    let policy_path = match policy_override {
+        Some(p) => p.to_string(),
+        None => {
+            let written = ast.items.iter().find_map(|i| match i {
+                crate::lang::scenario::Item::Policy { path, .. } => Some(path.value.clone()),
+                _ => None,
+            });
+            let Some(written) = written else {
+                let d = Diagnostic::error("missing-item", ast.name.span, "the scenario names no policy")
+                    .with_label("needs `policy \"FILE\"`")
+                    .with_hint("add `policy \"van_throttle.limp\"` (relative to this file), or pass --policy");
+                return Err(diag::render(&src.path, &src.text, &[d]));
+            };
+            let base = std::path::Path::new(path).parent().unwrap_or(std::path::Path::new(""));
+            base.join(written).to_string_lossy().into_owned()
+        }
+    };
+    let (_, model, _) = load_policy(&policy_path)?;
+    let script = crate::sim::script::resolve(&ast, &model).map_err(|d| diag::render(&src.path, &src.text, &d))?;
+    let trace = crate::sim::engine::run(&model, &script, opts)
+        .map_err(|e| format!("error: the actuator figures of `{policy_path}` give no usable throttle-body model: {e}\n"))?;
+    Ok(Replay { scenario: src, model, trace })
+}
+
+/// `limpet run`: replays each script; exit 1 when any expectation fails.
+pub fn run(paths: &[String], cfg: &RunConfig) -> Outcome {
+    let mut opts = crate::sim::engine::RunOptions::default();
+    if let Some(s) = cfg.sample_every {
+        opts.sample_every = s;
+    }
+    let mut stdout = String::new();
+    let mut stderr = String::new();
+    let mut exit = Exit::Holds;
+    for p in paths {
+        let r = match replay(p, cfg.policy.as_deref(), opts) {
+            Ok(r) => r,
+            Err(e) => {
+                stderr.push_str(&e);
+                exit = exit.max(Exit::BadInput);
+                continue;
+            }
+        };
+        if !r.trace.passed() {
+            exit = exit.max(Exit::Finding);
+        }
+        match cfg.format {
+            Format::Json => stdout.push_str(&r.trace.to_json()),
+            Format::Csv => stdout.push_str(&r.trace.to_csv()),
+            Format::Vcd => stdout.push_str(&crate::report::vcd::write(&r.trace)),
+            Format::Svg => stdout.push_str(&crate::report::plot::svg(&r.trace)),
+            _ => {
+                stdout.push_str(&r.trace.to_text(cfg.quiet));
+                if paths.len() > 1 {
+                    stdout.push('\n');
+                }
+            }
+        }
+    }
+    Outcome { stdout, stderr, exit }
+}

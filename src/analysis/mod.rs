@@ -8,6 +8,9 @@ use crate::diag::Diagnostic;
 use crate::model::Model;
 
 /// Every structural finding about a model, as diagnostics, in a deterministic order.
-pub fn findings(_m: &Model) -> Vec<Diagnostic> {
-    Vec::new()
+pub fn findings(m: &Model) -> Vec<Diagnostic> {
+    graph::analyse(m)
+        .into_iter()
+        .map(Diagnostic::from)
+        .collect()
 }

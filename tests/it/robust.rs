@@ -33,7 +33,9 @@ fn mutate(edits: &[(usize, usize, u8, u8)]) -> String {
             2 => b.insert(at, byte),
             _ => {
                 // A token from the language, to reach deeper than syntax errors.
-                let toks: [&[u8]; 8] = [b" 0 ", b" ms", b" %", b"-", b" and ", b" not ", b"(", b" 1e400 "];
+                let toks: [&[u8]; 8] = [
+                    b" 0 ", b" ms", b" %", b"-", b" and ", b" not ", b"(", b" 1e400 ",
+                ];
                 b.splice(at..at, toks[byte as usize % 8].iter().copied());
             }
         }
