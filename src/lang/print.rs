@@ -29,6 +29,10 @@ use super::policy::{
     Integer, Item, ModeItem, PolicyAst, Quantity, SensorItem, SignalAst, TermAst, TrackRefAst,
     TransitionAst,
 };
+use super::scenario::{
+    ActionAst, ExpectAst, FaultForm, Item as SItem, OnOff, Quantity as SQuantity, ScenarioAst,
+    SetValue,
+};
 use crate::diag::Diagnostic;
 
 /// The column (0-based) where end-of-line comments start unless the code reaches further.
@@ -37,6 +41,8 @@ pub const COMMENT_COLUMN: usize = 31;
 pub const ONE_LINE_WIDTH: usize = 100;
 /// The most padding alignment may add to one fault line.
 pub const FAULT_PAD_LIMIT: usize = 4;
+/// The narrowest the `at TIME` column of a scenario event is.
+pub const EVENT_TIME_WIDTH: usize = 11;
 
 /// Parses and prints a policy in the canonical layout; the syntax diagnostics when it does not
 /// parse.
@@ -50,8 +56,31 @@ pub fn format_policy(src: &str) -> Result<String, Vec<Diagnostic>> {
 /// Prints a parsed policy in the canonical layout; `src` is the text it was parsed from, where
 /// the comments are found.
 pub fn policy(src: &str, ast: &PolicyAst) -> String {
-    let mut p = Printer::new(src);
+    let mut p = Printer::new(src, None);
     let root = build_policy(src, ast);
+    p.file(&root);
+    render(p.out)
+}
+
+/// Parses and prints a scenario in the canonical layout; the syntax diagnostics when it does
+/// not parse.
+pub fn format_scenario(src: &str) -> Result<String, Vec<Diagnostic>> {
+    match super::scenario::parse(src) {
+        (Some(ast), d) if d.is_empty() => Ok(scenario(src, &ast)),
+        (_, d) => Err(d),
+    }
+}
+
+/// Prints a parsed scenario in the canonical layout. Its comments come from the tree (the
+/// scenario language has strings, so a `#` is not always a comment).
+pub fn scenario(src: &str, ast: &ScenarioAst) -> String {
+    let given = ast
+        .comments
+        .iter()
+        .map(|c| (c.span.start, c.text.clone()))
+        .collect();
+    let mut p = Printer::new(src, Some(given));
+    let root = build_scenario(src, ast);
     p.file(&root);
     render(p.out)
 }
@@ -97,6 +126,8 @@ enum Align {
     Fault,
     Transition,
     Mode,
+    /// Scenario events: `at TIME` then the action.
+    Event,
 }
 
 impl Align {
@@ -104,6 +135,15 @@ impl Align {
         match self {
             Align::Fault => FAULT_PAD_LIMIT,
             _ => usize::MAX,
+        }
+    }
+
+    /// The narrowest a leading column may be: event times take at least `at` and eight
+    /// characters, so actions line up across the runs of a script.
+    fn min_width(self, col: usize) -> usize {
+        match (self, col) {
+            (Align::Event, 0) => EVENT_TIME_WIDTH,
+            _ => 0,
         }
     }
 }
@@ -422,6 +462,115 @@ fn expr(e: &ExprAst) -> String {
 }
 
 // ---------------------------------------------------------------------------------------------
+// Scenarios: a flat block of header lines, events and expectations.
+
+fn build_scenario(src: &str, ast: &ScenarioAst) -> Node {
+    let children = ast.items.iter().map(scenario_item).collect();
+    block(
+        src,
+        ast.span,
+        format!("scenario {}", ast.name.text),
+        children,
+        false,
+    )
+}
+
+/// A scenario quantity: the number (its `+` kept only where `signed`), one space, the unit as
+/// written (a spelling the language rejects is kept for the resolver to report).
+fn sqty(q: &SQuantity, signed: bool) -> String {
+    let n = if signed {
+        let t = q.number.replace('E', "e");
+        t.replace("e+", "e")
+    } else {
+        number(&q.number)
+    };
+    match &q.unit {
+        Some(u) => format!("{n} {}", u.unit.map_or(u.text.as_str(), |k| k.text())),
+        None => n,
+    }
+}
+
+fn on_off(o: &OnOff) -> &'static str {
+    if o.on { "on" } else { "off" }
+}
+
+fn scenario_item(item: &SItem) -> Node {
+    let sp = item.span();
+    match item {
+        SItem::Policy { path, .. } => leaf(sp, format!("policy \"{}\"", path.value)),
+        SItem::Length { length, .. } => leaf(sp, format!("length {}", sqty(length, false))),
+        SItem::Event(e) => {
+            let action = match &e.action {
+                ActionAst::Set { name, value, .. } => match value {
+                    SetValue::Level { value, over } => {
+                        let mut s = format!("{} {}", name.text, sqty(value, false));
+                        if let Some(o) = over {
+                            s.push_str(&format!(" over {}", sqty(o, false)));
+                        }
+                        s
+                    }
+                    SetValue::Switch { on } => format!("{} {}", name.text, on_off(on)),
+                },
+                ActionAst::Break { target, fault, .. } => {
+                    let form = match &fault.form {
+                        FaultForm::Open => "open".to_string(),
+                        FaultForm::ShortGround => "short ground".to_string(),
+                        FaultForm::ShortSupply => "short supply".to_string(),
+                        FaultForm::Stuck => "stuck".to_string(),
+                        // The sign of an offset says which way it pulls: kept as written.
+                        FaultForm::Offset { volts } => format!("offset {}", sqty(volts, true)),
+                        FaultForm::Gain { percent } => format!("gain {}", sqty(percent, false)),
+                        FaultForm::Bridged { other } => format!("bridged {}", other.text()),
+                        FaultForm::Intermittent { open, every } => format!(
+                            "intermittent open {} every {}",
+                            sqty(open, false),
+                            sqty(every, false)
+                        ),
+                        FaultForm::GroundOffset { volts } => {
+                            format!("ground offset {}", sqty(volts, true))
+                        }
+                        FaultForm::Supply { volts } => format!("supply {}", sqty(volts, false)),
+                        FaultForm::Weak { percent } => format!("weak {}", sqty(percent, false)),
+                        FaultForm::SpringBroken => "spring broken".to_string(),
+                    };
+                    format!("break {} {form}", target.text())
+                }
+                ActionAst::Mend { target, kind, .. } => match kind {
+                    Some(k) => format!("mend {} {}", target.text(), k.kind.words()),
+                    None => format!("mend {}", target.text()),
+                },
+                ActionAst::Key { on, .. } => format!("key {}", on_off(on)),
+            };
+            Node::Leaf {
+                span: sp,
+                cells: vec![format!("at {}", sqty(&e.at, false)), action],
+                align: Align::Event,
+            }
+        }
+        SItem::Expect(x) => {
+            let what = match &x.kind {
+                ExpectAst::FaultBy { fault, by } => {
+                    format!("fault {} by {}", fault.text, sqty(by, false))
+                }
+                ExpectAst::FaultNever { fault } => format!("fault never {}", fault.text),
+                ExpectAst::ModeBy { mode, by } => {
+                    format!("mode {} by {}", mode.text, sqty(by, false))
+                }
+                ExpectAst::ModeNever { mode } => format!("mode never {}", mode.text),
+                ExpectAst::Opening(o) => format!(
+                    "opening at {} {} from {} to {}",
+                    if o.bound.at_most { "most" } else { "least" },
+                    sqty(&o.x, false),
+                    sqty(&o.from, false),
+                    sqty(&o.to, false)
+                ),
+            };
+            leaf(sp, format!("expect {what}"))
+        }
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
 // Output lines, then alignment.
 
 #[derive(Debug)]
@@ -447,12 +596,24 @@ struct Printer<'a> {
 }
 
 impl<'a> Printer<'a> {
-    fn new(src: &'a str) -> Printer<'a> {
+    /// A printer over `src` with its comments as (byte offset, text), in source order; `None`
+    /// scans them (right for a language without strings).
+    fn new(src: &'a str, given: Option<Vec<(usize, String)>>) -> Printer<'a> {
         let mut line_starts = vec![0];
         line_starts.extend(src.match_indices('\n').map(|(i, _)| i + 1));
         let ls = line_starts.clone();
         let line_of = move |off: usize| ls.partition_point(|&s| s <= off).saturating_sub(1);
-        let comments = scan_comments(src, &line_of);
+        let comments = match given {
+            None => scan_comments(src, &line_of),
+            Some(v) => v
+                .into_iter()
+                .map(|(start, text)| Comment {
+                    start,
+                    line: line_of(start),
+                    text: text.trim_end().to_string(),
+                })
+                .collect(),
+        };
         Printer {
             src,
             line_starts,
@@ -470,6 +631,25 @@ impl<'a> Printer<'a> {
     /// The line of the last byte of a span.
     fn end_line(&self, sp: Span) -> usize {
         self.line_of(sp.end.saturating_sub(1).max(sp.start))
+    }
+
+    /// A span without trailing white space or comments: some spans of the scenario tree run
+    /// on over the white space after their last token, and a comment there is not inside.
+    fn tight(&self, sp: Span) -> Span {
+        let mut end = sp.end.min(self.src.len());
+        loop {
+            let text = self.src.get(sp.start..end).unwrap_or("");
+            end = sp.start + text.trim_end().len();
+            let last = self
+                .comments
+                .iter()
+                .rev()
+                .find(|c| c.start >= sp.start && c.start < end);
+            match last {
+                Some(c) if c.start + c.text.len() >= end => end = c.start,
+                _ => return Span::new(sp.start, end.max(sp.start)),
+            }
+        }
     }
 
     /// Comments starting in `[from, to)`, in order.
@@ -542,6 +722,7 @@ impl<'a> Printer<'a> {
     fn node(&mut self, n: &Node, depth: usize) -> usize {
         match n {
             Node::Leaf { span, cells, align } => {
+                let span = self.tight(*span);
                 // Comments inside a multi-line item go above it.
                 for c in self.comments_in(span.start, span.end) {
                     self.comment_line(depth, c.text);
@@ -610,7 +791,7 @@ impl<'a> Printer<'a> {
                 // Whether anything was written inside the braces yet: no blank line before it.
                 let mut started = false;
                 for child in children {
-                    let cs = child.span();
+                    let cs = self.tight(child.span());
                     for c in self.comments_in(from, cs.start) {
                         if c.line == prev_line {
                             self.attach(prev_at, c.text);
@@ -664,16 +845,8 @@ fn width(s: &str) -> usize {
 
 /// Joins the cells of an alignment group: every cell but the last padded to its column's
 /// width, columns that are empty on every line left out.
-fn align_group(rows: &[&Vec<String>]) -> Vec<String> {
-    let ncols = rows.iter().map(|r| r.len()).max().unwrap_or(0);
-    let widths: Vec<usize> = (0..ncols)
-        .map(|j| {
-            rows.iter()
-                .map(|r| r.get(j).map_or(0, |c| width(c)))
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
+fn align_group(rows: &[&Vec<String>], align: Align) -> Vec<String> {
+    let widths = col_widths(rows, align);
     rows.iter()
         .map(|r| {
             let mut s = String::new();
@@ -693,18 +866,16 @@ fn align_group(rows: &[&Vec<String>]) -> Vec<String> {
 
 /// The padding alignment adds to each row: aligned width of the leading columns minus the
 /// row's own.
-fn paddings(rows: &[&Vec<String>]) -> Vec<usize> {
+fn paddings(rows: &[&Vec<String>], align: Align) -> Vec<usize> {
     let ncols = rows.iter().map(|r| r.len()).max().unwrap_or(0);
     let lead = ncols.saturating_sub(1);
-    let widths: Vec<usize> = (0..lead)
-        .map(|j| {
-            rows.iter()
-                .map(|r| r.get(j).map_or(0, |c| width(c)))
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
-    let aligned: usize = widths.iter().filter(|w| **w > 0).map(|w| w + 1).sum();
+    let widths = col_widths(rows, align);
+    let aligned: usize = widths
+        .iter()
+        .take(lead)
+        .filter(|w| **w > 0)
+        .map(|w| w + 1)
+        .sum();
     rows.iter()
         .map(|r| {
             let own: usize = r
@@ -718,12 +889,27 @@ fn paddings(rows: &[&Vec<String>]) -> Vec<usize> {
         .collect()
 }
 
+/// The width of each column over a group: its widest cell, or the kind's minimum.
+fn col_widths(rows: &[&Vec<String>], align: Align) -> Vec<usize> {
+    let ncols = rows.iter().map(|r| r.len()).max().unwrap_or(0);
+    (0..ncols)
+        .map(|j| {
+            rows.iter()
+                .map(|r| r.get(j).map_or(0, |c| width(c)))
+                .max()
+                .unwrap_or(0)
+                .max(align.min_width(j))
+        })
+        .collect()
+}
+
 /// Splits a run into alignment groups, greedily, so that no row is padded beyond the limit.
-fn groups(rows: &[&Vec<String>], limit: usize) -> Vec<std::ops::Range<usize>> {
+fn groups(rows: &[&Vec<String>], align: Align) -> Vec<std::ops::Range<usize>> {
+    let limit = align.pad_limit();
     let mut out = Vec::new();
     let mut start = 0;
     for i in 1..rows.len() {
-        let fits = paddings(&rows[start..=i]).iter().all(|p| *p <= limit);
+        let fits = paddings(&rows[start..=i], align).iter().all(|p| *p <= limit);
         if !fits {
             out.push(start..i);
             start = i;
@@ -774,8 +960,8 @@ fn render(lines: Vec<Line>) -> String {
             rows.push(cells);
             j += 1;
         }
-        for g in groups(&rows, a.pad_limit()) {
-            let texts = align_group(&rows[g.clone()]);
+        for g in groups(&rows, a) {
+            let texts = align_group(&rows[g.clone()], a);
             for (k, t) in g.zip(texts) {
                 code[i + k] = t;
             }
