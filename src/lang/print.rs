@@ -1,6 +1,7 @@
-//! The canonical printer of policies: one layout for any spelling of the same tree. The AST has
-//! no comments, so they are recovered from the source text by byte position (`#` always starts
-//! a comment: the language has no strings) and attached to the lines they annotate.
+//! The canonical printer of policies and scenarios: one layout for any spelling of the same
+//! tree. The policy AST has no comments, so they are recovered from the source text by byte
+//! position (`#` always starts one: the policy language has no strings); the scenario AST
+//! lists its own. Either way they are attached to the lines they annotate.
 //!
 //! The layout, in full:
 //! - two spaces of indentation per block level, one space between tokens, `, ` in lists;
@@ -21,7 +22,10 @@
 //!   further right. Whole-line comments stay above the item they precede, at its indentation;
 //!   a comment written inside an item that spans several lines is moved above the item;
 //! - blank lines between items are kept, at most one; none right after `{` or before `}`;
-//!   line ends are `\n` and the file ends with exactly one.
+//!   line ends are `\n` and the file ends with exactly one;
+//! - scenarios: the same rules; within a run of events the action column is aligned, with the
+//!   `at TIME` column at least [`EVENT_TIME_WIDTH`] wide, and a number keeps its `+` only in
+//!   `offset` and `ground offset`, where the sign says which way the fault pulls.
 
 use super::Span;
 use super::policy::{
@@ -236,9 +240,7 @@ fn build_item(src: &str, item: &Item) -> Node {
                         leaf(*span, format!("track {}: {}", name.name, pts.join(", ")))
                     }
                     SensorItem::Filter(q, span) => leaf(*span, format!("filter {}", qty(q))),
-                    SensorItem::OpenReads(q, span) => {
-                        leaf(*span, format!("open reads {}", qty(q)))
-                    }
+                    SensorItem::OpenReads(q, span) => leaf(*span, format!("open reads {}", qty(q))),
                     SensorItem::Combine(k, span) => leaf(*span, format!("combine {}", k.name)),
                 })
                 .collect();
@@ -396,7 +398,10 @@ fn transition(t: &TransitionAst) -> Node {
 
 fn join<S: AsRef<str>>(parts: impl Iterator<Item = S>) -> String {
     let v: Vec<S> = parts.collect();
-    v.iter().map(AsRef::as_ref).collect::<Vec<&str>>().join(", ")
+    v.iter()
+        .map(AsRef::as_ref)
+        .collect::<Vec<&str>>()
+        .join(", ")
 }
 
 /// A number as written, without a leading `+`, with `e` and no `+` in the exponent.
@@ -656,7 +661,10 @@ impl<'a> Printer<'a> {
     fn comments_in(&self, from: usize, to: usize) -> Vec<Comment> {
         let a = self.comments.partition_point(|c| c.start < from);
         let b = self.comments.partition_point(|c| c.start < to);
-        self.comments.get(a..b).map(<[Comment]>::to_vec).unwrap_or_default()
+        self.comments
+            .get(a..b)
+            .map(<[Comment]>::to_vec)
+            .unwrap_or_default()
     }
 
     fn blank(&mut self) {
@@ -672,10 +680,7 @@ impl<'a> Printer<'a> {
     /// Attaches an end-of-line comment to output line `at`; a line that already has one (a
     /// header that spanned several source lines) gets the newcomer above it instead.
     fn attach(&mut self, at: usize, text: String) {
-        let Some(Line::Code {
-            comment, depth, ..
-        }) = self.out.get_mut(at)
-        else {
+        let Some(Line::Code { comment, depth, .. }) = self.out.get_mut(at) else {
             return;
         };
         match comment {
@@ -909,7 +914,9 @@ fn groups(rows: &[&Vec<String>], align: Align) -> Vec<std::ops::Range<usize>> {
     let mut out = Vec::new();
     let mut start = 0;
     for i in 1..rows.len() {
-        let fits = paddings(&rows[start..=i], align).iter().all(|p| *p <= limit);
+        let fits = paddings(&rows[start..=i], align)
+            .iter()
+            .all(|p| *p <= limit);
         if !fits {
             out.push(start..i);
             start = i;
@@ -951,7 +958,10 @@ fn render(lines: Vec<Line>) -> String {
         let mut j = i;
         let mut rows = Vec::new();
         while let Some(Line::Code {
-            depth, align, cells, ..
+            depth,
+            align,
+            cells,
+            ..
         }) = lines.get(j)
         {
             if *depth != d || *align != a {
@@ -1069,7 +1079,8 @@ mod tests {
 
     #[test]
     fn transitions_align_arrows_and_guards() {
-        let src = "policy p {\n a -> bbb when x\n long_name -> c when y for 1 s\n\n z -> q when w\n}";
+        let src =
+            "policy p {\n a -> bbb when x\n long_name -> c when y for 1 s\n\n z -> q when w\n}";
         let want = "policy p {\n  a         -> bbb when x\n  long_name -> c   when y for 1 s\n\n  \
                     z -> q when w\n}\n";
         assert_eq!(fmt(src), want);
@@ -1093,7 +1104,8 @@ mod tests {
     #[test]
     fn a_fault_without_suspects_keeps_the_when_column() {
         let src = "policy p {\n fault ab suspects s.a when x\n fault abc when y\n}";
-        let want = "policy p {\n  fault ab  suspects s.a when x\n  fault abc              when y\n}\n";
+        let want =
+            "policy p {\n  fault ab  suspects s.a when x\n  fault abc              when y\n}\n";
         // The second line needs 13 spaces to align: beyond the limit, so no alignment.
         assert_ne!(fmt(src), want);
         assert_eq!(
@@ -1171,7 +1183,10 @@ mod tests {
         assert_eq!(REFERENCE.lines().count(), once.lines().count());
         assert_eq!(changed.len(), 3, "{changed:#?}");
         for (a, b) in changed {
-            assert_eq!(a.split_whitespace().collect::<Vec<_>>(), b.split_whitespace().collect::<Vec<_>>());
+            assert_eq!(
+                a.split_whitespace().collect::<Vec<_>>(),
+                b.split_whitespace().collect::<Vec<_>>()
+            );
         }
     }
 }
