@@ -57,8 +57,9 @@ pub fn run_with(files: &[String], check: bool, diff: bool, stdin: &mut dyn Read)
         exit: Exit::Holds,
     };
     if files.is_empty() {
-        out.stderr
-            .push_str("error: no files given\n  = hint: limpet fmt FILE... (`-` for standard input)\n");
+        out.stderr.push_str(
+            "error: no files given\n  = hint: limpet fmt FILE... (`-` for standard input)\n",
+        );
         out.exit = Exit::BadInput;
         return out;
     }
@@ -108,8 +109,9 @@ fn one(path: &str, check: bool, diff: bool, stdin: &mut dyn Read, out: &mut Outc
         Ok(f) => f,
         Err(rendered) => {
             out.stderr.push_str(&rendered);
-            out.stderr
-                .push_str(&format!("error: `{name}` does not parse; it was not changed\n"));
+            out.stderr.push_str(&format!(
+                "error: `{name}` does not parse; it was not changed\n"
+            ));
             return Exit::BadInput;
         }
     };
@@ -167,7 +169,10 @@ pub fn write_atomically(path: &Path, text: &str) -> std::io::Result<()> {
     let file_name = path
         .file_name()
         .map_or_else(|| "file".into(), |n| n.to_string_lossy().into_owned());
-    let tmp = dir.join(format!(".{file_name}.limpet-fmt-{}.tmp", std::process::id()));
+    let tmp = dir.join(format!(
+        ".{file_name}.limpet-fmt-{}.tmp",
+        std::process::id()
+    ));
     let result = (|| {
         let mut f = std::fs::File::create(&tmp)?;
         f.write_all(text.as_bytes())?;
@@ -250,7 +255,10 @@ mod tests {
         let o = run_with(&["-".to_string()], false, false, &mut MESSY.as_bytes());
         assert_eq!((o.exit, o.stdout.as_str()), (Exit::Holds, CANON));
         let o = run_with(&["-".to_string()], true, false, &mut MESSY.as_bytes());
-        assert_eq!((o.exit, o.stdout.as_str()), (Exit::Finding, "would reformat <stdin>\n"));
+        assert_eq!(
+            (o.exit, o.stdout.as_str()),
+            (Exit::Finding, "would reformat <stdin>\n")
+        );
     }
 
     #[test]
