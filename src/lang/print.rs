@@ -1156,6 +1156,16 @@ mod tests {
     }
 
     #[test]
+    fn crlf_line_ends_become_lf() {
+        let src = "policy p {\r\n  period 5 ms # c\r\n\r\n\r\n  switch b\r\n}";
+        let want = format!(
+            "policy p {{\n{}\n  switch b\n}}\n",
+            c31("  period 5 ms", "# c")
+        );
+        assert_eq!(fmt(src), want);
+    }
+
+    #[test]
     fn empty_blocks_are_braces() {
         assert_eq!(
             fmt("policy p { actuator { } assure {\n} }"),
