@@ -8,6 +8,7 @@ pub mod app;
 pub mod controller;
 pub mod diag;
 pub mod faults;
+pub mod fmt;
 pub mod lang;
 pub mod model;
 pub mod plant;

@@ -2,6 +2,7 @@
 //! printer. Nothing outside this module sees pest types.
 
 pub mod policy;
+pub mod print;
 pub mod scenario;
 
 use serde::Serialize;

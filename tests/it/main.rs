@@ -2,6 +2,7 @@
 //! command.
 
 mod check;
+mod fmt;
 mod robust;
 
 use std::path::Path;
