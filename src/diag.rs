@@ -45,7 +45,10 @@ impl Diagnostic {
     }
 
     pub fn warning(code: &'static str, span: Span, message: impl Into<String>) -> Diagnostic {
-        Diagnostic { severity: Severity::Warning, ..Diagnostic::error(code, span, message) }
+        Diagnostic {
+            severity: Severity::Warning,
+            ..Diagnostic::error(code, span, message)
+        }
     }
 
     pub fn with_label(mut self, label: impl Into<String>) -> Diagnostic {
@@ -106,10 +109,13 @@ pub fn render(path: &str, source: &str, diags: &[Diagnostic]) -> String {
 }
 
 /// The closest of `candidates` to a misspelt `name`, for "did you mean" hints.
-pub fn did_you_mean<'a>(name: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
+pub fn did_you_mean<'a>(
+    name: &str,
+    candidates: impl IntoIterator<Item = &'a str>,
+) -> Option<&'a str> {
     let mut best: Option<(usize, &str)> = None;
     for c in candidates {
-        let d = strsim::levenshtein(name, c);
+        let d = strsim::damerau_levenshtein(name, c);
         let limit = (name.len().max(c.len()) / 3).max(1);
         if d <= limit && best.is_none_or(|(bd, _)| d < bd) {
             best = Some((d, c));
@@ -133,7 +139,10 @@ mod tests {
 
     #[test]
     fn did_you_mean_finds_near_names() {
-        assert_eq!(did_you_mean("reduced_powr", ["normal", "reduced_power"]), Some("reduced_power"));
+        assert_eq!(
+            did_you_mean("reduced_powr", ["normal", "reduced_power"]),
+            Some("reduced_power")
+        );
         assert_eq!(did_you_mean("xyz", ["normal", "reduced_power"]), None);
     }
 

@@ -4,11 +4,13 @@
 //! the pure `controller` step driven by `sim` or `prove`, and `diff` over two models.
 
 pub mod analysis;
+pub mod app;
 pub mod controller;
 pub mod diag;
 pub mod faults;
 pub mod lang;
 pub mod model;
 pub mod plant;
+pub mod report;
 pub mod sim;
 pub mod time;

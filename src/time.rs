@@ -5,7 +5,9 @@ use serde::{Deserialize, Serialize};
 use std::fmt;
 
 /// An instant or a duration in simulated time, in nanoseconds.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[derive(
+    Clone, Copy, Debug, Default, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize,
+)]
 pub struct Time(pub u64);
 
 impl Time {
@@ -55,17 +57,12 @@ impl fmt::Display for Time {
         if ns == 0 {
             return write!(f, "0 ms");
         }
-        if ns % 1_000_000_000 == 0 {
+        if ns.is_multiple_of(1_000_000_000) {
             write!(f, "{} s", ns / 1_000_000_000)
-        } else if ns % 1_000_000 == 0 {
-            let ms = ns / 1_000_000;
-            if ms >= 1000 {
-                write!(f, "{} s", trim(ms as f64 / 1000.0))
-            } else {
-                write!(f, "{ms} ms")
-            }
-        } else if ns % 1000 == 0 {
-            write!(f, "{} ms", trim(ns as f64 / 1e6))
+        } else if ns.is_multiple_of(1_000_000) && ns < 1_000_000_000 {
+            write!(f, "{} ms", ns / 1_000_000)
+        } else if ns >= 1_000_000_000 {
+            write!(f, "{} s", trim(ns as f64 / 1e9))
         } else {
             write!(f, "{} ms", trim(ns as f64 / 1e6))
         }
@@ -76,7 +73,11 @@ impl fmt::Display for Time {
 pub fn trim(x: f64) -> String {
     let s = format!("{x:.6}");
     let s = s.trim_end_matches('0').trim_end_matches('.');
-    if s == "-0" { "0".to_string() } else { s.to_string() }
+    if s == "-0" {
+        "0".to_string()
+    } else {
+        s.to_string()
+    }
 }
 
 #[cfg(test)]

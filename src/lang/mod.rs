@@ -19,11 +19,17 @@ impl Span {
     }
 
     pub fn of(pair: &pest::Span<'_>) -> Span {
-        Span { start: pair.start(), end: pair.end() }
+        Span {
+            start: pair.start(),
+            end: pair.end(),
+        }
     }
 
     /// The smallest span covering both.
     pub fn join(self, other: Span) -> Span {
-        Span { start: self.start.min(other.start), end: self.end.max(other.end) }
+        Span {
+            start: self.start.min(other.start),
+            end: self.end.max(other.end),
+        }
     }
 }

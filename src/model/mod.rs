@@ -4,7 +4,7 @@
 
 mod lower;
 
-pub use lower::lower;
+pub use lower::{load, lower, lower_ast, term_signals};
 
 use crate::lang::Span;
 use crate::time::Time;
@@ -194,7 +194,12 @@ pub enum Debounce {
     /// Counter debouncing: each step with the condition true adds `up`, each with it false
     /// subtracts `down`; the fault sets when the counter reaches `fail` and, unless latched,
     /// clears when it falls back to `pass`. The counter is clamped to `pass..=fail`.
-    Counter { up: u32, down: u32, fail: u32, pass: u32 },
+    Counter {
+        up: u32,
+        down: u32,
+        fail: u32,
+        pass: u32,
+    },
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
@@ -276,8 +281,16 @@ impl Model {
             .iter()
             .enumerate()
             .filter_map(|(i, t)| match t.from {
-                Source::Mode(m) if m == mode => Some(Edge { from: m, to: t.to, transition: i }),
-                Source::Any if t.to != mode => Some(Edge { from: mode, to: t.to, transition: i }),
+                Source::Mode(m) if m == mode => Some(Edge {
+                    from: m,
+                    to: t.to,
+                    transition: i,
+                }),
+                Source::Any if t.to != mode => Some(Edge {
+                    from: mode,
+                    to: t.to,
+                    transition: i,
+                }),
                 _ => None,
             })
             .collect()
@@ -285,7 +298,9 @@ impl Model {
 
     /// Every expanded edge, grouped by source mode in mode order.
     pub fn edges(&self) -> Vec<Edge> {
-        (0..self.modes.len()).flat_map(|m| self.edges_from(m)).collect()
+        (0..self.modes.len())
+            .flat_map(|m| self.edges_from(m))
+            .collect()
     }
 
     pub fn track(&self, r: TrackRef) -> &Track {
@@ -294,7 +309,10 @@ impl Model {
 
     /// `pedal.a` style name of a track.
     pub fn track_name(&self, r: TrackRef) -> String {
-        format!("{}.{}", self.sensors[r.sensor].name, self.sensors[r.sensor].tracks[r.track].name)
+        format!(
+            "{}.{}",
+            self.sensors[r.sensor].name, self.sensors[r.sensor].tracks[r.track].name
+        )
     }
 
     pub fn mode_id(&self, name: &str) -> Option<ModeId> {
@@ -312,8 +330,14 @@ impl Model {
     /// Resolves `sensor.track`.
     pub fn track_ref(&self, sensor: &str, track: &str) -> Option<TrackRef> {
         let s = self.sensor_id(sensor)?;
-        let t = self.sensors[s].tracks.iter().position(|t| t.name == track)?;
-        Some(TrackRef { sensor: s, track: t })
+        let t = self.sensors[s]
+            .tracks
+            .iter()
+            .position(|t| t.name == track)?;
+        Some(TrackRef {
+            sensor: s,
+            track: t,
+        })
     }
 }
 
@@ -370,15 +394,34 @@ impl Compare {
 pub enum Expr {
     True,
     /// A fault is set (guards only).
-    Fault { fault: FaultId, span: Span },
+    Fault {
+        fault: FaultId,
+        span: Span,
+    },
     /// Some set fault suspects this track (guards only).
-    Suspect { track: TrackRef, span: Span },
+    Suspect {
+        track: TrackRef,
+        span: Span,
+    },
     /// A switch is on.
-    Switch { switch: SwitchId, span: Span },
-    Compare { term: Term, cmp: Compare, span: Span },
-    Not { e: Box<Expr> },
-    And { es: Vec<Expr> },
-    Or { es: Vec<Expr> },
+    Switch {
+        switch: SwitchId,
+        span: Span,
+    },
+    Compare {
+        term: Term,
+        cmp: Compare,
+        span: Span,
+    },
+    Not {
+        e: Box<Expr>,
+    },
+    And {
+        es: Vec<Expr>,
+    },
+    Or {
+        es: Vec<Expr>,
+    },
 }
 
 impl Expr {
@@ -422,9 +465,17 @@ pub enum FaultScope {
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum Requirement {
     /// Opening above the fault-free opening by more than `limit` ends within `within` (the FTTI).
-    Excess { limit: f64, within: Time, span: Span },
+    Excess {
+        limit: f64,
+        within: Time,
+        span: Span,
+    },
     /// The opening never exceeds `above`, unless the driver's pedal exceeds `unless_driver`.
-    Never { above: f64, unless_driver: Option<f64>, span: Span },
+    Never {
+        above: f64,
+        unless_driver: Option<f64>,
+        span: Span,
+    },
     /// After the driver's pedal goes to 0 %, the opening is at or below `idle` within this time.
     IdleAfterRelease { within: Time, span: Span },
 }

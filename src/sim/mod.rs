@@ -2,3 +2,4 @@
 //! expectations and traces.
 
 pub mod script;
+pub mod trace;

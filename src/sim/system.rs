@@ -1,0 +1,199 @@
+//! The closed loop of one vehicle: true positions, the wiring with its injected faults, the
+//! controller (through the one controller step) and the throttle body. The simulator and the
+//! prover both drive it, so they share one semantics.
+
+use crate::controller::{Controller, Event, Outputs, Sample, State};
+use crate::faults::{self, ActiveFault, Injection};
+use crate::model::{Model, SensorId};
+use crate::plant::{self, ActuatorCondition, PlantError, PlantParams, PlantState};
+use crate::time::Time;
+
+#[derive(Clone, Debug)]
+pub struct System {
+    ctl: Controller,
+    params: PlantParams,
+    /// Whether the key is on.
+    key: bool,
+    /// The controller's memory; `None` until the first step after key on.
+    state: Option<State>,
+    out: Outputs,
+    plate: PlantState,
+    /// True positions per sensor, percent; the feedback sensor's entry follows the plate.
+    positions: Vec<f64>,
+    sample: Sample,
+    active: Vec<ActiveFault>,
+    condition: ActuatorCondition,
+}
+
+impl System {
+    /// Key on at rest: the plate at its default position, the pedal released.
+    pub fn new(model: &Model) -> Result<System, PlantError> {
+        let params = PlantParams::derive(&model.actuator)?;
+        let ctl = Controller::new(model);
+        let mut sample = Sample::healthy(model, &vec![0.0; model.sensors.len()]);
+        sample.inputs = model.inputs.iter().map(|i| i.hi).collect();
+        let mut sys = System {
+            ctl,
+            params,
+            key: true,
+            state: None,
+            out: Outputs::default(),
+            plate: PlantState::at_rest(model.actuator.default),
+            positions: vec![0.0; model.sensors.len()],
+            sample,
+            active: Vec::new(),
+            condition: ActuatorCondition::HEALTHY,
+        };
+        sys.positions[model.feedback] = model.actuator.default;
+        sys.out.target = model.actuator.default;
+        Ok(sys)
+    }
+
+    pub fn model(&self) -> &Model {
+        self.ctl.model()
+    }
+
+    pub fn set_position(&mut self, sensor: SensorId, percent: f64) {
+        if sensor != self.model().feedback
+            && let Some(p) = self.positions.get_mut(sensor)
+        {
+            *p = percent.clamp(0.0, 100.0);
+        }
+    }
+
+    pub fn set_switch(&mut self, switch: usize, on: bool) {
+        if let Some(s) = self.sample.switches.get_mut(switch) {
+            *s = on;
+        }
+    }
+
+    pub fn set_input(&mut self, input: usize, percent: f64) {
+        if let Some(s) = self.sample.inputs.get_mut(input) {
+            *s = percent;
+        }
+    }
+
+    /// Breaks something at instant `now`; a stuck fault captures what it freezes now.
+    pub fn inject(&mut self, inj: Injection, now: Time) {
+        let model = self.ctl.model();
+        let af = ActiveFault::new(model, inj, now, &self.positions, self.plate.position, &self.active);
+        self.active.push(af);
+        self.condition = faults::actuator_condition(&self.active);
+        if self.condition.stuck_at.is_some() {
+            self.plate.velocity = 0.0;
+        }
+    }
+
+    /// Mends every active fault `which` selects; returns what was mended.
+    pub fn mend(&mut self, which: impl Fn(&Injection) -> bool) -> Vec<Injection> {
+        let mut mended = Vec::new();
+        self.active.retain(|a| {
+            if which(&a.injection) {
+                mended.push(a.injection);
+                false
+            } else {
+                true
+            }
+        });
+        self.condition = faults::actuator_condition(&self.active);
+        mended
+    }
+
+    pub fn active_faults(&self) -> &[ActiveFault] {
+        &self.active
+    }
+
+    pub fn key_off(&mut self) {
+        self.key = false;
+        self.state = None;
+        self.out.duty = 0.0;
+        self.out.drive_on = false;
+        self.out.target = self.model().actuator.default;
+    }
+
+    /// Key on: the controller powers up on its next step, latched faults forgotten.
+    pub fn key_on_at(&mut self, _now: Time) {
+        self.key = true;
+    }
+
+    pub fn key_on(&self) -> bool {
+        self.key
+    }
+
+    /// Fills the sample with what the input pins see now.
+    fn sample_pins(&mut self, now: Time) {
+        let model = self.ctl.model();
+        self.positions[model.feedback] = self.plate.position;
+        for s in 0..model.sensors.len() {
+            let (pos, out) = (self.positions[s], &mut self.sample.volts[s]);
+            faults::sensor_volts(model, s, pos, &self.active, now, out);
+        }
+    }
+
+    /// One controller step at instant `now`; its events are appended to `events`.
+    pub fn controller_tick(&mut self, now: Time, events: &mut Vec<Event>) {
+        if !self.key {
+            return;
+        }
+        self.sample_pins(now);
+        let state = match self.state.as_mut() {
+            Some(s) => s,
+            None => self.state.insert(self.ctl.power_up(&self.sample)),
+        };
+        self.ctl.step_in_place(state, &self.sample, &mut self.out);
+        events.extend_from_slice(&self.out.events);
+    }
+
+    /// Advances the plate by `dt` with the duty of the last step.
+    pub fn advance_plant(&mut self, _now: Time, dt: Time) {
+        let on = self.key && self.out.drive_on;
+        self.plate = plant::advance(&self.params, self.plate, self.out.duty, on, &self.condition, dt);
+    }
+
+    pub fn substep(&self) -> Time {
+        self.params.substep()
+    }
+
+    pub fn opening(&self) -> f64 {
+        self.plate.position
+    }
+
+    pub fn plate(&self) -> PlantState {
+        self.plate
+    }
+
+    pub fn merged(&self, sensor: SensorId) -> f64 {
+        if self.state.is_none() {
+            return 0.0;
+        }
+        self.out.merged.get(sensor).copied().unwrap_or(0.0)
+    }
+
+    pub fn target(&self) -> f64 {
+        self.out.target
+    }
+
+    pub fn duty(&self) -> f64 {
+        if self.key && self.out.drive_on { self.out.duty } else { 0.0 }
+    }
+
+    pub fn mode(&self) -> usize {
+        self.state.as_ref().map_or(self.model().start, |s| s.mode())
+    }
+
+    pub fn fault_set(&self, f: usize) -> bool {
+        self.state.as_ref().is_some_and(|s| s.fault_set(f))
+    }
+
+    pub fn fault_pending(&self, f: usize) -> bool {
+        self.state.as_ref().is_some_and(|s| s.fault_pending(f))
+    }
+
+    pub fn controller_state(&self) -> Option<&State> {
+        self.state.as_ref()
+    }
+
+    pub fn controller(&self) -> &Controller {
+        &self.ctl
+    }
+}
