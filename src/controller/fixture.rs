@@ -133,9 +133,9 @@ pub(crate) fn edge(from: Source, to: usize, guard: Expr, dwell: Option<Time>) ->
     }
 }
 
-/// `van_throttle` exactly as DESIGN.md writes it. `reads` follows the IR's definition (the
-/// tracks a condition reads, through the merged value too), so `plausibility` is true for every
-/// condition over two or more tracks.
+/// `van_throttle` exactly as DESIGN.md writes it. `reads` follows lowering: the tracks a
+/// condition names (`X.a`, `X.a.volts`), not those behind a merged value, so `tracking` and
+/// `brake_conflict` are not plausibility checks.
 pub(crate) fn van() -> Model {
     let heal = Healing::After { time: ms(200) };
     let pedal = sig(Signal::Merged { sensor: PEDAL });
@@ -237,7 +237,7 @@ pub(crate) fn van() -> Model {
             ms(250),
             Healing::Latch,
             Some("P2119"),
-            vec![TA, TB],
+            vec![],
         ),
         monitor(
             "brake_conflict",
@@ -249,7 +249,7 @@ pub(crate) fn van() -> Model {
             ms(100),
             Healing::After { time: ms(100) },
             None,
-            vec![PA, PB],
+            vec![],
         ),
     ];
     let pedal_below_3 = || cmp(pedal, Compare::Below { x: 3.0 });

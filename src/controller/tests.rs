@@ -764,3 +764,150 @@ fn steps_round_times_up_to_whole_periods() {
     assert_eq!(steps_for(Time::ZERO, p), 1);
     assert_eq!(steps_for(Time::from_ms(7), Time::ZERO), 7_000_000);
 }
+
+const REFERENCE: &str = include_str!("../../scenarios/van/van_throttle.limp");
+
+fn lowered() -> Model {
+    match crate::model::lower(REFERENCE) {
+        Ok(m) => m,
+        Err(d) => panic!("the reference policy does not lower: {d:?}"),
+    }
+}
+
+#[test]
+fn the_hand_built_fixture_agrees_with_the_lowered_reference() {
+    let (a, b) = (van(), lowered());
+    assert_eq!(a.period, b.period);
+    assert_eq!((a.feedback, a.driver), (b.feedback, b.driver));
+    assert_eq!(a.faults.len(), b.faults.len());
+    for (x, y) in a.faults.iter().zip(&b.faults) {
+        assert_eq!(x.name, y.name);
+        assert_eq!(x.suspects, y.suspects, "{}", x.name);
+        assert_eq!(x.reads, y.reads, "{}", x.name);
+        assert_eq!(x.plausibility, y.plausibility, "{}", x.name);
+        assert_eq!(x.debounce, y.debounce, "{}", x.name);
+        assert_eq!(x.healing, y.healing, "{}", x.name);
+        assert_eq!(x.code, y.code, "{}", x.name);
+    }
+    for (x, y) in a.modes.iter().zip(&b.modes) {
+        assert_eq!(
+            (&x.name, &x.demand, x.limit, x.rate),
+            (&y.name, &y.demand, y.limit, y.rate)
+        );
+    }
+    for (x, y) in a.transitions.iter().zip(&b.transitions) {
+        assert_eq!((x.from, x.to, x.dwell), (y.from, y.to, y.dwell));
+    }
+    assert_eq!(a.edges(), b.edges());
+
+    // Conditions and guards carry spans, so compare them by behaviour: the same drive through
+    // both models gives the same state on every step. The drive follows the bundled
+    // pedal_a_open script, then presses the brake with the pedal down, then opens throttle.b.
+    let (ca, cb) = (Controller::new(&a), Controller::new(&b));
+    let mut ba = Bench::new(&a, 0.0);
+    let mut bb = Bench::new(&b, 0.0);
+    bb.c = cb;
+    ba.c = ca;
+    for k in 0..1200 {
+        for bench in [&mut ba, &mut bb] {
+            bench.pedal = match k {
+                0..40 => 0.0,
+                40..100 => 35.0 * f64::from(k - 40) / 60.0,
+                100..320 => 35.0,
+                320..480 => 90.0,
+                480..700 => 0.0,
+                700..900 => 50.0,
+                _ => 20.0,
+            };
+            match k {
+                200 => bench.brk(PA, 0.0),
+                440 => bench.mend(PA),
+                750 => bench.brake = true,
+                850 => bench.brake = false,
+                1000 => bench.brk(TB, 0.0),
+                _ => {}
+            }
+            bench.step();
+        }
+        assert_eq!(ba.st, bb.st, "step {k}");
+        assert_eq!(ba.out, bb.out, "step {k}");
+    }
+    // The drive went through reduced power, back to normal, idle only and shutdown.
+    assert_eq!(ba.st.mode(), SHUTDOWN);
+}
+
+#[test]
+fn the_bundled_pedal_a_open_script_meets_its_expectations() {
+    // scenarios/van/pedal_a_open.scenario: expect fault pedal_a_low by 1.05 s, mode
+    // reduced_power by 1.05 s, never shutdown, normal by 3.5 s (the opening bound needs the
+    // plant and is the simulator's to check).
+    let m = lowered();
+    let mut b = Bench::new(&m, 0.0);
+    let mut shutdown = false;
+    for k in 0..=700u32 {
+        // The script acts before the step of its instant; step k is at k * 5 ms.
+        let t = k * 5;
+        b.pedal = match t {
+            0..200 => 0.0,
+            200..500 => 35.0 * f64::from(t - 200) / 300.0,
+            500..1600 => 35.0,
+            1600..2400 => 90.0,
+            _ => 0.0,
+        };
+        if t == 1000 {
+            b.brk(PA, 0.0);
+        }
+        if t == 2200 {
+            b.mend(PA);
+        }
+        b.step();
+        shutdown |= b.st.mode() == SHUTDOWN;
+        if t == 1050 {
+            assert!(b.st.fault_set(PEDAL_A_LOW));
+            assert_eq!(b.st.mode(), REDUCED);
+        }
+        if (1100..2400).contains(&t) {
+            assert!(b.out.target <= 35.0 + 1e-9, "{t} ms: {}", b.out.target);
+        }
+    }
+    assert!(!shutdown);
+    assert_eq!(b.st.mode(), NORMAL);
+}
+
+#[test]
+fn the_position_loop_tracks_the_plant_modules_throttle_body() {
+    let m = lowered();
+    let Ok(params) = crate::plant::PlantParams::derive(&m.actuator) else {
+        panic!("the reference actuator derives")
+    };
+    let c = Controller::new(&m);
+    let healthy = crate::plant::ActuatorCondition::HEALTHY;
+    let mut plate = crate::plant::PlantState::at_rest(m.actuator.default);
+    let mut st = c.power_up(&Sample::healthy(&m, &[0.0, plate.position]));
+    let mut out = Outputs::default();
+    let mut worst = 0.0f64;
+    for pedal in [35.0, 90.0, 20.0, 0.0, 60.0] {
+        let mut run_off = 0;
+        let mut worst_run = 0;
+        for k in 0..100 {
+            let s = Sample::healthy(&m, &[pedal, plate.position]);
+            c.step_in_place(&mut st, &s, &mut out);
+            plate =
+                crate::plant::advance(&params, plate, out.duty, out.drive_on, &healthy, m.period);
+            let e = (out.target - plate.position).abs();
+            run_off = if e > 10.0 { run_off + 1 } else { 0 };
+            worst_run = worst_run.max(run_off);
+            if k >= 80 {
+                worst = worst.max(e);
+            }
+        }
+        assert!(
+            worst_run * 5 <= 100,
+            "pedal {pedal}: 10 % off for {} ms",
+            worst_run * 5
+        );
+    }
+    assert!(worst < 1.0, "settled error {worst} %");
+    assert!(!st.fault_pending(TRACKING) && !st.fault_set(TRACKING));
+    assert_eq!(st.mode(), NORMAL);
+}
