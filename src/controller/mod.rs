@@ -17,8 +17,18 @@
 //! 3. **Transition.** At most one: the edges out of the current mode in file order, guards read
 //!    the faults as they now stand and the merged values recomputed with them; a guard with a
 //!    dwell must have held on `ceil(dwell / T)` consecutive steps in the source mode.
-//! 4. **Demand and drive** for the mode now active, then the PI position loop on the merged
-//!    feedback.
+//! 4. **Demand and drive** for the mode now active: the sensor's merged value, the input
+//!    clamped into its band, or the fixed value; clamped to `0 ..= limit`; an opening demand
+//!    slewed by `rate` per second (a closing one followed at once, so release is never
+//!    delayed). Then the PI loop ([`loop_gains`]) on `target - merged feedback`, duty clamped to
+//!    -100..=100 % with clamping anti-windup. `drive off`: `drive_on` false, duty 0, the
+//!    integrator emptied, and the target set to the actuator default (where the springs hold
+//!    the plate), which is also where a later rate-limited mode starts from.
+//!
+//! Monitors and guards that read `target` see the previous step's. Events of a step come in
+//! the order they happen: plain faults in file order, then plausibility checks in file order,
+//! then the transition. A fault whose debounce starts and qualifies on one step reports
+//! `FaultPending` then `FaultSet`.
 //!
 //! # Rounding of times to steps
 //! A time `D` (debounce, heal, dwell) becomes `N = max(1, ceil(D / T))` steps: a `for 20 ms`
