@@ -12,6 +12,7 @@ pub mod fmt;
 pub mod lang;
 pub mod model;
 pub mod plant;
+pub mod prove;
 pub mod report;
 pub mod sim;
 pub mod time;

@@ -62,6 +62,87 @@ enum Command {
         #[arg(long, value_enum, default_value = "dot")]
         format: OutFormat,
     },
+    /// Replay scenario scripts against their policy; print traces and verdicts.
+    Run {
+        /// Scenario files (.scenario).
+        #[arg(required = true)]
+        scenarios: Vec<String>,
+        /// Use this policy instead of the one each script names.
+        #[arg(long)]
+        policy: Option<String>,
+        /// Trace sample interval, e.g. `5ms` or `10 ms`.
+        #[arg(long, value_parser = parse_time)]
+        sample: Option<limpet::time::Time>,
+        /// text, json, csv, vcd or svg.
+        #[arg(long, value_enum, default_value = "text")]
+        format: OutFormat,
+        /// Print only the verdicts.
+        #[arg(long, short)]
+        quiet: bool,
+    },
+    /// Search every catalogued fault exhaustively; print the reaction matrix.
+    Prove {
+        /// The policy file (.limp).
+        policy: String,
+        /// Pedal grid step in percent.
+        #[arg(long, default_value_t = 5.0)]
+        grid: f64,
+        /// Quantisation of continuous states in percent.
+        #[arg(long, default_value_t = 1.0)]
+        resolution: f64,
+        /// Time followed after each injection, e.g. `1.5s`.
+        #[arg(long, value_parser = parse_time, default_value = "1.5s")]
+        horizon: limpet::time::Time,
+        /// Bound on stored states per search; hitting it makes the verdict inconclusive.
+        #[arg(long, default_value_t = 2_000_000)]
+        max_states: usize,
+        /// Threads (0: one per core). Output does not depend on it.
+        #[arg(long, default_value_t = 0)]
+        jobs: usize,
+        /// Let the pedal jump anywhere on the grid each period.
+        #[arg(long)]
+        free_pedal: bool,
+        /// Search pairs too, whatever the policy's `faults` line says.
+        #[arg(long)]
+        double: bool,
+        /// Only fault sets whose description contains this text.
+        #[arg(long)]
+        only: Option<String>,
+        /// Write each counterexample as a scenario script into this directory.
+        #[arg(long)]
+        counterexamples: Option<String>,
+        /// text, json or markdown.
+        #[arg(long, value_enum, default_value = "text")]
+        format: OutFormat,
+    },
+    /// Rewrite policies and scenarios in the canonical layout.
+    Fmt {
+        /// Files to format; `-` reads standard input (a policy) and writes standard output.
+        #[arg(required = true)]
+        files: Vec<String>,
+        /// Change nothing; list the files that would change and exit 1 if any would.
+        #[arg(long)]
+        check: bool,
+        /// With --check, show a unified diff of each change.
+        #[arg(long)]
+        diff: bool,
+    },
+}
+
+/// Parses `5ms`, `10 ms`, `1.5s`, `250us`.
+fn parse_time(s: &str) -> Result<limpet::time::Time, String> {
+    let t = s.trim();
+    let split = t.find(|c: char| !(c.is_ascii_digit() || c == '.')).unwrap_or(t.len());
+    let (num, unit) = t.split_at(split);
+    let v: f64 = num.parse().map_err(|_| format!("`{s}` is not a time such as `5ms`"))?;
+    let secs = match unit.trim() {
+        "s" => v,
+        "ms" => v / 1e3,
+        "us" => v / 1e6,
+        "" => return Err(format!("`{s}` has no unit; write e.g. `{s}ms`")),
+        u => return Err(format!("`{u}` is not a time unit (s, ms, us)")),
+    };
+    limpet::time::Time::from_secs_f64(secs).ok_or_else(|| format!("`{s}` is out of range"))
 }
 
 fn main() -> ExitCode {
@@ -83,6 +164,44 @@ fn main() -> ExitCode {
             deny,
         } => app::check(&policy, format.into(), deny.is_some()),
         Command::Graph { policy, format } => app::graph(&policy, format.into()),
+        Command::Run { scenarios, policy, sample, format, quiet } => {
+            let cfg = app::RunConfig { policy, sample_every: sample, format: format.into(), quiet };
+            app::run(&scenarios, &cfg)
+        }
+        Command::Prove {
+            policy,
+            grid,
+            resolution,
+            horizon,
+            max_states,
+            jobs,
+            free_pedal,
+            double,
+            only,
+            counterexamples,
+            format,
+        } => {
+            if !(grid > 0.0 && grid <= 100.0) || !(resolution > 0.0 && resolution <= 50.0) {
+                Outcome::bad_input(
+                    "error: --grid must be in (0, 100] and --resolution in (0, 50] percent\n".into(),
+                )
+            } else {
+                let search = limpet::prove::Config {
+                    grid,
+                    resolution,
+                    horizon,
+                    max_states,
+                    free_pedal,
+                    jobs,
+                    scope: double.then_some(limpet::model::FaultScope::Double),
+                    only,
+                };
+                let progress = std::io::IsTerminal::is_terminal(&std::io::stderr());
+                let cfg = app::ProveConfig { search, format: format.into(), counterexamples, progress };
+                app::prove(&policy, &cfg)
+            }
+        }
+        Command::Fmt { files, check, diff } => limpet::fmt::run(&files, check, diff),
     };
     // The one place that writes results and sets the exit status.
     let _ = std::io::stdout().write_all(outcome.stdout.as_bytes());

@@ -4,7 +4,7 @@
 //! step, then the sample.
 
 use super::script::{Action, ExpectKind, Script};
-use super::system::System;
+use super::system::{System, Vehicle};
 use super::trace::{EventKind, Trace, TraceEvent, TraceSample, Verdict};
 use crate::controller::Event;
 use crate::faults;
@@ -60,7 +60,8 @@ struct Watch {
 
 /// Replays a script against a model: the trace with every expectation's verdict.
 pub fn run(model: &Model, script: &Script, opts: RunOptions) -> Result<Trace, crate::plant::PlantError> {
-    let mut sys = System::new(model)?;
+    let vehicle = Vehicle::new(model)?;
+    let mut sys = System::new(&vehicle);
     let period = model.period;
     let sample_every = if opts.sample_every == Time::ZERO { period } else { opts.sample_every };
     let length = script.length;

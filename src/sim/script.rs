@@ -127,7 +127,7 @@ pub struct Expectation {
     pub kind: ExpectKind,
 }
 
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum ExpectKind {
     /// The fault is set at instant `by`.

@@ -6,12 +6,28 @@ use crate::controller::{Controller, Event, Outputs, Sample, State};
 use crate::faults::{self, ActiveFault, Injection};
 use crate::model::{Model, SensorId};
 use crate::plant::{self, ActuatorCondition, PlantError, PlantParams, PlantState};
+
 use crate::time::Time;
 
+/// What every run of one policy shares: the prepared controller and the derived plate.
 #[derive(Clone, Debug)]
-pub struct System {
-    ctl: Controller,
-    params: PlantParams,
+pub struct Vehicle {
+    pub ctl: Controller,
+    pub params: PlantParams,
+}
+
+impl Vehicle {
+    pub fn new(model: &Model) -> Result<Vehicle, PlantError> {
+        Ok(Vehicle { ctl: Controller::new(model), params: PlantParams::derive(&model.actuator)? })
+    }
+}
+
+/// One vehicle's moment-to-moment state. Cheap to clone: the prover keeps one per visited
+/// state.
+#[derive(Clone, Debug)]
+pub struct System<'v> {
+    ctl: &'v Controller,
+    params: &'v PlantParams,
     /// Whether the key is on.
     key: bool,
     /// The controller's memory; `None` until the first step after key on.
@@ -25,11 +41,12 @@ pub struct System {
     condition: ActuatorCondition,
 }
 
-impl System {
-    /// Key on at rest: the plate at its default position, the pedal released.
-    pub fn new(model: &Model) -> Result<System, PlantError> {
-        let params = PlantParams::derive(&model.actuator)?;
-        let ctl = Controller::new(model);
+impl<'v> System<'v> {
+    /// Key on at rest: the plate at its default position, the pedal released, inputs at the
+    /// top of their band (the most the other controller may ask for).
+    pub fn new(vehicle: &'v Vehicle) -> System<'v> {
+        let (ctl, params) = (&vehicle.ctl, &vehicle.params);
+        let model = ctl.model();
         let mut sample = Sample::healthy(model, &vec![0.0; model.sensors.len()]);
         sample.inputs = model.inputs.iter().map(|i| i.hi).collect();
         let mut sys = System {
@@ -46,10 +63,10 @@ impl System {
         };
         sys.positions[model.feedback] = model.actuator.default;
         sys.out.target = model.actuator.default;
-        Ok(sys)
+        sys
     }
 
-    pub fn model(&self) -> &Model {
+    pub fn model(&self) -> &'v Model {
         self.ctl.model()
     }
 
@@ -76,7 +93,7 @@ impl System {
     /// Breaks something at instant `now`; a stuck fault captures what it freezes now.
     pub fn inject(&mut self, inj: Injection, now: Time) {
         let model = self.ctl.model();
-        let af = ActiveFault::new(model, inj, now, &self.positions, self.plate.position, &self.active);
+        let af = ActiveFault::capture(model, inj, now, &self.positions, self.plate.position, &self.active);
         self.active.push(af);
         self.condition = faults::actuator_condition(&self.active);
         if self.condition.stuck_at.is_some() {
@@ -193,7 +210,12 @@ impl System {
         self.state.as_ref()
     }
 
-    pub fn controller(&self) -> &Controller {
-        &self.ctl
+    pub fn controller(&self) -> &'v Controller {
+        self.ctl
+    }
+
+    /// The true position of a sensor the driver moves, percent.
+    pub fn position(&self, sensor: SensorId) -> f64 {
+        self.positions.get(sensor).copied().unwrap_or(0.0)
     }
 }

@@ -1,0 +1,304 @@
+//! Views of a proof: the static pre-pass, the reaction matrix (text, markdown, JSON), the
+//! stories of the counterexamples, and the counterexamples as scenario scripts.
+
+use super::search::Violation;
+use super::{Proof, Row};
+use crate::faults::describe;
+use crate::model::Model;
+use crate::time::{Time, trim};
+use std::fmt::Write;
+
+fn fault_text(m: &Model, row: &Row) -> String {
+    row.faults.iter().map(|i| describe(m, i)).collect::<Vec<_>>().join(" + ")
+}
+
+fn ms(t: Option<Time>) -> String {
+    t.map_or("-".into(), |t| format!("{} ms", trim(t.as_ms_f64())))
+}
+
+fn names(m: &Model, fs: &[usize]) -> String {
+    if fs.is_empty() { "-".into() } else { fs.iter().map(|&f| m.faults[f].name.as_str()).collect::<Vec<_>>().join(",") }
+}
+
+fn mode_names(m: &Model, ms: &[usize]) -> String {
+    if ms.is_empty() { "-".into() } else { ms.iter().map(|&x| m.modes[x].name.as_str()).collect::<Vec<_>>().join(",") }
+}
+
+/// `ok`, `VIOLATED` or `?` (bound hit) per requirement.
+fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
+    (0..p.requirements.len())
+        .map(|ri| {
+            if row.result.violations.iter().any(|v| v.requirement == ri) {
+                "VIOLATED"
+            } else if row.result.truncated {
+                "?"
+            } else {
+                "ok"
+            }
+        })
+        .collect()
+}
+
+/// The cells of one matrix row, in column order.
+fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
+    let r = &row.result;
+    let mut c = vec![
+        fault_text(m, row),
+        if row.faults.len() == 1 { names(m, &row.seen_by) } else { "".into() },
+        names(m, &r.monitors),
+        if r.monitors.is_empty() { "-".into() } else { ms(r.worst_detection) },
+        mode_names(m, &r.end_modes),
+        ms(r.to_safe),
+        format!("{:.1} % / {}", r.worst_excess.max(0.0), ms(Some(r.worst_excess_duration))),
+        format!("{:.1} %", r.worst_opening_below_ceiling),
+        ms(Some(r.worst_idle_after_release)),
+    ];
+    c.extend(verdicts(p, row).into_iter().map(String::from));
+    c
+}
+
+fn headers(p: &Proof) -> Vec<String> {
+    let mut h: Vec<String> = [
+        "fault",
+        "seen by (static)",
+        "detected by",
+        "worst detection",
+        "ends in",
+        "to safe",
+        "worst excess / for",
+        "worst opening, driver below",
+        "release to idle",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    h.extend(p.requirements.iter().map(|r| r.short().to_string()));
+    h
+}
+
+/// The settings line: what "exhaustive" covered.
+pub fn coverage(m: &Model, p: &Proof) -> String {
+    let c = &p.config;
+    format!(
+        "policy {}: {} fault set{} ({}), {} states ({} fault-free), pedal grid {} %{}, resolution {} %, horizon {} after each injection, every injection instant of the fault-free set",
+        m.name,
+        p.rows.len(),
+        if p.rows.len() == 1 { "" } else { "s" },
+        match p.scope {
+            crate::model::FaultScope::Single => "single faults",
+            crate::model::FaultScope::Double => "single faults and pairs",
+        },
+        p.states,
+        p.pre_states,
+        trim(c.grid),
+        if c.free_pedal { ", pedal free" } else { ", pedal at most one grid step per period" },
+        trim(c.resolution),
+        c.horizon
+    )
+}
+
+/// The static pre-pass, listed before the search results.
+pub fn prepass(m: &Model, p: &Proof) -> String {
+    let mut o = String::from("static pre-pass: faults no monitor can see at any steady pedal and plate position\n");
+    let mut n = 0;
+    for row in p.rows.iter().filter(|r| r.faults.len() == 1 && r.seen_by.is_empty()) {
+        let _ = writeln!(o, "  {}", fault_text(m, row));
+        n += 1;
+    }
+    if n == 0 {
+        o.push_str("  (none)\n");
+    }
+    o
+}
+
+fn table(rows: &[Vec<String>], markdown: bool) -> String {
+    let n = rows.first().map_or(0, |r| r.len());
+    let w: Vec<usize> = (0..n).map(|i| rows.iter().map(|r| r[i].chars().count()).max().unwrap_or(0)).collect();
+    let mut o = String::new();
+    for (k, r) in rows.iter().enumerate() {
+        if markdown {
+            let cells: Vec<String> = r.iter().map(|c| c.replace('|', "\\|")).collect();
+            let _ = writeln!(o, "| {} |", cells.join(" | "));
+            if k == 0 {
+                let _ = writeln!(o, "|{}|", vec!["---"; n].join("|"));
+            }
+        } else {
+            let line: Vec<String> = r.iter().enumerate().map(|(i, c)| format!("{c:<width$}", width = w[i])).collect();
+            let _ = writeln!(o, "{}", line.join("  ").trim_end());
+        }
+    }
+    o
+}
+
+/// Each violation's story in a few lines.
+pub fn stories(m: &Model, p: &Proof) -> String {
+    let mut o = String::new();
+    for row in &p.rows {
+        for v in &row.result.violations {
+            let req = p.requirements[v.requirement].text(m);
+            let inject = Time(m.period.0 * u64::from(v.inject_step));
+            let class = if row.uncorrectable { " (no throttle policy can correct this fault)" } else { "" };
+            let _ = writeln!(o, "violated: {req}{class}");
+            let _ = writeln!(o, "  fault {} injected at {}", fault_text(m, row), secs(inject));
+            let start = v.pedal.get(v.inject_step as usize).copied().unwrap_or(0.0);
+            let last = v.pedal.last().copied().unwrap_or(0.0);
+            let _ = writeln!(
+                o,
+                "  driver at {} % then at {} % by {} ({} periods of pedal moves)",
+                trim(start),
+                trim(last),
+                secs(v.at),
+                v.pedal.len()
+            );
+            let _ = writeln!(o, "  opening {:.2} % at {} where the bound is {:.2} %", v.opening, secs(v.at), v.bound);
+        }
+    }
+    o
+}
+
+fn secs(t: Time) -> String {
+    format!("{} s", trim(t.as_secs_f64()))
+}
+
+pub fn text(m: &Model, p: &Proof) -> String {
+    let mut o = String::new();
+    o.push_str(&prepass(m, p));
+    o.push('\n');
+    let mut rows = vec![headers(p)];
+    rows.extend(p.rows.iter().map(|r| cells(m, p, r)));
+    o.push_str("reaction matrix\n");
+    o.push_str(&table(&rows, false));
+    o.push('\n');
+    let st = stories(m, p);
+    if !st.is_empty() {
+        o.push_str(&st);
+        o.push('\n');
+    }
+    o.push_str(&summary(m, p));
+    o
+}
+
+pub fn summary(m: &Model, p: &Proof) -> String {
+    let mut o = String::new();
+    for (ri, r) in p.requirements.iter().enumerate() {
+        let bad: Vec<&Row> = p.rows.iter().filter(|row| row.result.violations.iter().any(|v| v.requirement == ri)).collect();
+        let correctable = bad.iter().filter(|r| !r.uncorrectable).count();
+        let verdict = if correctable > 0 {
+            format!("VIOLATED by {correctable} fault set(s)")
+        } else if p.inconclusive() {
+            "inconclusive (a bound was hit)".into()
+        } else {
+            "holds".into()
+        };
+        let extra = if bad.len() > correctable {
+            format!("; violated by {} uncorrectable actuator fault(s)", bad.len() - correctable)
+        } else {
+            String::new()
+        };
+        let _ = writeln!(o, "{}: {verdict}{extra}", r.text(m));
+    }
+    if p.pre_truncated {
+        let _ = writeln!(o, "bound hit: the fault-free set exceeded --max-states {}", p.config.max_states);
+    }
+    let truncated = p.rows.iter().filter(|r| r.result.truncated).count();
+    if truncated > 0 {
+        let _ = writeln!(o, "bound hit: {truncated} fault search(es) exceeded --max-states {}", p.config.max_states);
+    }
+    let _ = writeln!(o, "{}", coverage(m, p));
+    o.push_str("limpet is a design aid, not a safety case: these verdicts hold for this model, catalogue, grid and horizon only.\n");
+    o
+}
+
+pub fn markdown(m: &Model, p: &Proof) -> String {
+    let mut o = format!("## Reaction matrix: `{}`\n\n", m.name);
+    let mut rows = vec![headers(p)];
+    rows.extend(p.rows.iter().map(|r| cells(m, p, r)));
+    o.push_str(&table(&rows, true));
+    o.push('\n');
+    for line in summary(m, p).lines() {
+        let _ = writeln!(o, "- {line}");
+    }
+    o
+}
+
+pub fn json(m: &Model, p: &Proof) -> String {
+    let rows: Vec<serde_json::Value> = p
+        .rows
+        .iter()
+        .map(|row| {
+            let r = &row.result;
+            serde_json::json!({
+                "fault": fault_text(m, row),
+                "injections": row.faults,
+                "seen_by": row.seen_by.iter().map(|&f| &m.faults[f].name).collect::<Vec<_>>(),
+                "uncorrectable": row.uncorrectable,
+                "detected_by": r.monitors.iter().map(|&f| &m.faults[f].name).collect::<Vec<_>>(),
+                "worst_detection_ms": r.worst_detection.map(|t| t.as_ms_f64()),
+                "undetected_branch": r.undetected_branch,
+                "ends_in": r.end_modes.iter().map(|&x| &m.modes[x].name).collect::<Vec<_>>(),
+                "to_safe_ms": r.to_safe.map(|t| t.as_ms_f64()),
+                "worst_excess": crate::sim::trace::round6(r.worst_excess),
+                "worst_excess_duration_ms": r.worst_excess_duration.as_ms_f64(),
+                "worst_opening_below_ceiling": crate::sim::trace::round6(r.worst_opening_below_ceiling),
+                "worst_release_to_idle_ms": r.worst_idle_after_release.as_ms_f64(),
+                "states": r.states,
+                "truncated": r.truncated,
+                "verdicts": verdicts(p, row),
+                "violations": r.violations.iter().map(|v| serde_json::json!({
+                    "requirement": p.requirements[v.requirement].text(m),
+                    "at": v.at.as_secs_f64(),
+                    "opening": crate::sim::trace::round6(v.opening),
+                    "bound": crate::sim::trace::round6(v.bound),
+                })).collect::<Vec<_>>(),
+            })
+        })
+        .collect();
+    let v = serde_json::json!({
+        "policy": m.name,
+        "config": {
+            "grid": p.config.grid,
+            "resolution": p.config.resolution,
+            "horizon_ms": p.config.horizon.as_ms_f64(),
+            "max_states": p.config.max_states,
+            "free_pedal": p.config.free_pedal,
+        },
+        "requirements": p.requirements.iter().map(|r| r.text(m)).collect::<Vec<_>>(),
+        "pre_fault_states": p.pre_states,
+        "states": p.states,
+        "violated": p.violated(),
+        "inconclusive": p.inconclusive(),
+        "rows": rows,
+    });
+    format!("{}\n", serde_json::to_string_pretty(&v).unwrap_or_default())
+}
+
+/// A violation as a scenario script that `limpet run --policy POLICY FILE` replays.
+pub fn script(m: &Model, p: &Proof, row: &Row, v: &Violation, name: &str, policy_path: &str) -> String {
+    let req = p.requirements[v.requirement].text(m);
+    let mut o = String::new();
+    let _ = writeln!(o, "# Counterexample from limpet prove: {} breaks `{req}`.", fault_text(m, row));
+    let _ = writeln!(o, "# The driver's pedal moves on the prover's grid, one value per controller period.");
+    let _ = writeln!(o, "scenario {name} {{");
+    let _ = writeln!(o, "  policy \"{policy_path}\"");
+    let _ = writeln!(o, "  length {}", v.at + m.period);
+    let _ = writeln!(o);
+    let mut last: Option<f64> = None;
+    for (k, &pedal) in v.pedal.iter().enumerate() {
+        let at = Time(m.period.0 * k as u64);
+        if k == v.inject_step as usize {
+            for inj in &row.faults {
+                let _ = writeln!(o, "  at {:<9} break {}", at.to_string(), describe(m, inj));
+            }
+        }
+        if last != Some(pedal) {
+            let _ = writeln!(o, "  at {:<9} pedal {} %", at.to_string(), trim(pedal));
+            last = Some(pedal);
+        }
+    }
+    let _ = writeln!(o);
+    // The bound, rounded towards the side the opening broke it on, so the replay fails there.
+    let x = (v.bound * 100.0).floor() / 100.0;
+    let _ = writeln!(o, "  expect opening at most {} % from {} to {}", trim(x), v.at, v.at);
+    let _ = writeln!(o, "}}");
+    o
+}
