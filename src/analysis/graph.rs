@@ -41,6 +41,9 @@ pub enum FindingKind {
     OffPeriodTime,
     /// A guard question exceeded the enumeration bound; the finding it would decide is open.
     Inconclusive,
+    /// A transition out of a mode needs a latching fault clear that every way into the mode
+    /// sets: it cannot fire before the next key on.
+    LatchedExit,
 }
 
 impl FindingKind {
@@ -60,6 +63,7 @@ impl FindingKind {
             FindingKind::InertFault => "inert-fault",
             FindingKind::OffPeriodTime => "off-period-time",
             FindingKind::Inconclusive => "inconclusive",
+            FindingKind::LatchedExit => "latched-exit",
         }
     }
 
@@ -69,7 +73,7 @@ impl FindingKind {
             | FindingKind::UnreadFault
             | FindingKind::InertFault
             | FindingKind::OffPeriodTime => Severity::Warning,
-            FindingKind::Inconclusive => Severity::Note,
+            FindingKind::Inconclusive | FindingKind::LatchedExit => Severity::Note,
             _ => Severity::Error,
         }
     }
@@ -90,6 +94,7 @@ impl FindingKind {
             FindingKind::InertFault => "has no effect",
             FindingKind::OffPeriodTime => "not a whole number of periods",
             FindingKind::Inconclusive => "too large to decide",
+            FindingKind::LatchedExit => "waits for the next key on",
         }
     }
 }
@@ -101,6 +106,9 @@ pub struct Finding {
     pub kind: FindingKind,
     pub span: Span,
     pub message: String,
+    /// Text under the caret: the kind's own, unless the finding is about something else
+    /// than the kind usually points at (the policy name rather than a mode).
+    pub label: &'static str,
     pub hint: String,
     pub related: Vec<(Span, String)>,
 }
@@ -112,9 +120,15 @@ impl Finding {
             kind,
             span,
             message,
+            label: kind.label(),
             hint: hint.into(),
             related: Vec::new(),
         }
+    }
+
+    fn labelled(mut self, label: &'static str) -> Finding {
+        self.label = label;
+        self
     }
 
     fn with_related(mut self, span: Span, label: impl Into<String>) -> Finding {
@@ -130,7 +144,7 @@ impl From<Finding> for Diagnostic {
             code: f.kind.code(),
             message: f.message,
             span: f.span,
-            label: f.kind.label().to_string(),
+            label: f.label.to_string(),
             hint: f.hint,
             related: f.related,
         }
@@ -145,12 +159,14 @@ pub fn analyse(model: &Model) -> Vec<Finding> {
     let reachable = algo::reachable(&graph, &[NodeIndex::new(model.start)]);
     a.reachability(&graph, &reachable);
     a.missing(&reachable);
+    a.latched_exits(&reachable);
     a.overlaps();
     a.authority();
     a.chatter();
     a.tracks();
     a.unread();
     a.periods();
+    a.flush_open_questions();
     let mut out = a.out;
     out.sort_by(|x, y| {
         (x.span.start, x.span.end, x.kind, &x.message).cmp(&(
@@ -171,6 +187,9 @@ struct Analysis<'m> {
     /// Per mode and edge: false when the edge is proven never to fire.
     live: Vec<Vec<bool>>,
     out: Vec<Finding>,
+    /// Undecided questions per transition span, in the order asked, with the largest
+    /// enumeration any of them needed; one note per transition is emitted at the end.
+    open_questions: Vec<(Span, Vec<String>, u128)>,
 }
 
 impl<'m> Analysis<'m> {
@@ -182,6 +201,7 @@ impl<'m> Analysis<'m> {
             edges,
             live,
             out: Vec::new(),
+            open_questions: Vec::new(),
         }
     }
 
@@ -222,16 +242,45 @@ impl<'m> Analysis<'m> {
     }
 
     fn inconclusive(&mut self, span: Span, what: String, t: guards::TooLarge) {
-        self.out.push(Finding::new(
-            FindingKind::Inconclusive,
-            span,
-            format!(
-                "could not decide {what}: it needs {} valuations, over the bound of {}",
-                t.needed,
-                guards::MAX_ASSIGNMENTS
-            ),
-            "split the guard into simpler transitions",
-        ));
+        match self
+            .open_questions
+            .iter_mut()
+            .find(|(sp, _, _)| *sp == span)
+        {
+            Some((_, qs, needed)) => {
+                if !qs.contains(&what) {
+                    qs.push(what);
+                }
+                *needed = (*needed).max(t.needed);
+            }
+            None => self.open_questions.push((span, vec![what], t.needed)),
+        }
+    }
+
+    /// One note per transition whose questions were too large: a long guard is asked several
+    /// questions (can it fire, does it overlap, does it need each fault clear), and one
+    /// note naming them all reads better than one note each.
+    fn flush_open_questions(&mut self) {
+        for (span, qs, needed) in std::mem::take(&mut self.open_questions) {
+            let message = match qs.as_slice() {
+                [one] => format!(
+                    "could not decide {one}: it needs {needed} valuations, over the bound of {}",
+                    guards::MAX_ASSIGNMENTS
+                ),
+                _ => format!(
+                    "could not decide {} questions about this transition: {} (the largest needs {needed} valuations, over the bound of {})",
+                    qs.len(),
+                    qs.join("; "),
+                    guards::MAX_ASSIGNMENTS
+                ),
+            };
+            self.out.push(Finding::new(
+                FindingKind::Inconclusive,
+                span,
+                message,
+                "split the guard into simpler transitions",
+            ));
+        }
     }
 
     /// A transition can never fire when its guard is unsatisfiable, or when every valuation
@@ -399,15 +448,18 @@ impl<'m> Analysis<'m> {
             .collect();
         if safe.is_empty() {
             if !m.modes.is_empty() {
-                self.out.push(Finding::new(
-                    FindingKind::NoPathToSafe,
-                    m.name_span,
-                    format!(
-                        "policy `{}` has no `drive off` mode: no mode can reach a safe state",
-                        m.name
-                    ),
-                    "add a mode with `drive off` and transitions into it",
-                ));
+                self.out.push(
+                    Finding::new(
+                        FindingKind::NoPathToSafe,
+                        m.name_span,
+                        format!(
+                            "policy `{}` has no `drive off` mode: no mode can reach a safe state",
+                            m.name
+                        ),
+                        "add a mode with `drive off` and transitions into it",
+                    )
+                    .labelled("no mode here drives off"),
+                );
             }
             return;
         }
@@ -492,6 +544,79 @@ impl<'m> Analysis<'m> {
                     );
                 }
                 self.out.push(finding);
+            }
+        }
+    }
+
+    /// A latching fault that every live way into a mode requires set is set on entry and
+    /// stays set until key on, so a transition out that needs it clear cannot fire before
+    /// then. The start mode is entered at key on with every fault clear, so it is left out.
+    fn latched_exits(&mut self, reachable: &[bool]) {
+        let m = self.m;
+        let n = m.modes.len();
+        for mode in 0..n {
+            if mode == m.start || !reachable.get(mode).copied().unwrap_or(false) {
+                continue;
+            }
+            let entering: Vec<Edge> = (0..n)
+                .filter(|&k| reachable.get(k).copied().unwrap_or(false))
+                .flat_map(|k| self.live_edges(k).copied().collect::<Vec<_>>())
+                .filter(|e| e.to == mode && e.from != mode)
+                .collect();
+            if entering.is_empty() {
+                continue;
+            }
+            for (f, fault) in m.faults.iter().enumerate() {
+                if fault.healing != Healing::Latch {
+                    continue;
+                }
+                let set = Expr::Fault {
+                    fault: f,
+                    span: Span::default(),
+                };
+                let clear = Expr::Not {
+                    e: Box::new(set.clone()),
+                };
+                // Undecided questions stay quiet here: this is a note, and the guards
+                // concerned get their own inconclusive note elsewhere.
+                if !entering
+                    .iter()
+                    .all(|e| guards::implies(m, self.guard(e), &set).holds())
+                {
+                    continue;
+                }
+                let outs: Vec<Edge> = self.live_edges(mode).copied().collect();
+                for e in outs {
+                    if e.to == mode || !guards::implies(m, self.guard(&e), &clear).holds() {
+                        continue;
+                    }
+                    let mut finding = Finding::new(
+                        FindingKind::LatchedExit,
+                        self.span(&e),
+                        format!(
+                            "`{}` needs `{}` clear, but every way into `{}` sets it and it latches: this transition cannot fire before the next key on",
+                            self.edge_name(&e),
+                            fault.name,
+                            self.mode(mode)
+                        ),
+                        format!(
+                            "give `{}` a `heal` time if recovery is meant, or remove the transition",
+                            fault.name
+                        ),
+                    );
+                    let mut seen: Vec<usize> = Vec::new();
+                    for via in &entering {
+                        if !seen.contains(&via.transition) {
+                            seen.push(via.transition);
+                            finding = finding.with_related(
+                                self.span(via),
+                                format!("sets `{}` on the way in", fault.name),
+                            );
+                        }
+                    }
+                    finding = finding.with_related(fault.span, "latches");
+                    self.out.push(finding);
+                }
             }
         }
     }
@@ -629,7 +754,8 @@ impl<'m> Analysis<'m> {
                     ),
                     None => format!("not {}", self.fault(first)),
                 };
-                let mut hint = format!("require them clear in the guard, e.g. `{example}`");
+                let pronoun = if open.len() == 1 { "it" } else { "them" };
+                let mut hint = format!("require {pronoun} clear in the guard, e.g. `{example}`");
                 if !latched.is_empty() {
                     hint.push_str(&format!(
                         "; {} latch, so once required clear the transition waits for the next key on",
@@ -640,7 +766,7 @@ impl<'m> Analysis<'m> {
                     FindingKind::AuthorityUnderFault,
                     self.span(&e),
                     format!(
-                        "`{}` raises authority ({} to {}) while {} that led into `{}` may still be set",
+                        "`{}` raises authority ({} to {}) while {}, which led into `{}`, may still be set",
                         self.edge_name(&e),
                         authority_name(m, mode),
                         authority_name(m, e.to),
@@ -1167,6 +1293,8 @@ mod tests {
         let p = kinds(&fs, FindingKind::NoPathToSafe);
         assert_eq!(p.len(), 1);
         assert_eq!(p[0].span, b.m.name_span);
+        // The caret is on the policy name, not a mode: the label says so.
+        assert_eq!(p[0].label, "no mode here drives off");
     }
 
     #[test]
@@ -1330,7 +1458,7 @@ mod tests {
         assert_eq!(a[0].span, back);
         assert_eq!(
             a[0].message,
-            "`idle -> normal` raises authority (idle_request up to 12 % to pedal up to 100 %) while `f0` that led into `idle` may still be set"
+            "`idle -> normal` raises authority (idle_request up to 12 % to pedal up to 100 %) while `f0`, which led into `idle`, may still be set"
         );
         assert_eq!(
             a[0].related,
@@ -1339,6 +1467,53 @@ mod tests {
         // Requiring suspect(pedal.a) clear settles it.
         b.m.transitions[2].guard = not(suspect(0));
         assert!(kinds(&b.run(), FindingKind::AuthorityUnderFault).is_empty());
+    }
+
+    #[test]
+    fn a_latched_fault_that_led_in_blocks_the_way_out() {
+        let mut b = B::new();
+        let n = b.pedal_mode("normal");
+        let idle = b.idle_mode("idle");
+        let off = b.safe_mode("off");
+        b.m.faults[1].healing = Healing::Latch;
+        b.tr(None, off, f(3), None);
+        let into = b.tr(Some(n), idle, and(vec![f(1), not(f(3))]), None);
+        let back = b.tr(Some(idle), n, and(vec![not(f(1)), not(f(3))]), Some(1000));
+        let fs = b.run();
+        let l = kinds(&fs, FindingKind::LatchedExit);
+        assert_eq!(l.len(), 1, "{fs:#?}");
+        assert_eq!(l[0].severity, Severity::Note);
+        assert_eq!(l[0].span, back);
+        assert_eq!(
+            l[0].message,
+            "`idle -> normal` needs `f1` clear, but every way into `idle` sets it and it latches: this transition cannot fire before the next key on"
+        );
+        assert_eq!(
+            l[0].related[0],
+            (into, "sets `f1` on the way in".to_string())
+        );
+        // Healing instead of latching: the way back can fire.
+        b.m.faults[1].healing = Healing::Immediate;
+        assert!(kinds(&b.run(), FindingKind::LatchedExit).is_empty());
+        // Latching again, but a second way in that does not need f1: not always set.
+        b.m.faults[1].healing = Healing::Latch;
+        b.tr(Some(n), idle, f(2), None);
+        assert!(kinds(&b.run(), FindingKind::LatchedExit).is_empty());
+    }
+
+    #[test]
+    fn the_start_mode_is_entered_with_every_fault_clear() {
+        let mut b = B::new();
+        let n = b.pedal_mode("normal");
+        let idle = b.idle_mode("idle");
+        let off = b.safe_mode("off");
+        b.m.faults[1].healing = Healing::Latch;
+        b.tr(None, off, f(3), None);
+        // Back into the start mode only on f1, out of it only with f1 clear: at key on
+        // f1 is clear, so the way out can fire.
+        b.tr(Some(idle), n, and(vec![f(1), not(f(3))]), None);
+        b.tr(Some(n), idle, and(vec![not(f(1)), not(f(3))]), None);
+        assert!(kinds(&b.run(), FindingKind::LatchedExit).is_empty());
     }
 
     #[test]
@@ -1455,6 +1630,7 @@ mod tests {
             FindingKind::InertFault,
             FindingKind::OffPeriodTime,
             FindingKind::Inconclusive,
+            FindingKind::LatchedExit,
         ];
         for k in all {
             assert_eq!(
@@ -1485,6 +1661,32 @@ mod tests {
 mod reference {
     use super::*;
 
+    /// A guard over a dozen signals is asked three questions, each too large; they come out
+    /// as one note on the transition, not three.
+    #[test]
+    fn undecided_questions_on_one_transition_make_one_note() {
+        let src = include_str!("../../tests/fixtures/findings/inconclusive.limp");
+        let m = crate::model::lower(src).expect("fixture lowers");
+        let fs = analyse(&m);
+        let open: Vec<&Finding> = fs
+            .iter()
+            .filter(|f| f.kind == FindingKind::Inconclusive)
+            .collect();
+        assert_eq!(open.len(), 1, "{fs:#?}");
+        assert!(
+            open[0]
+                .message
+                .starts_with("could not decide 3 questions about this transition: whether transition `idle_only -> normal` in mode `idle_only` can fire; "),
+            "{}",
+            open[0].message
+        );
+        assert!(
+            open[0]
+                .message
+                .contains("(the largest needs 15750000 valuations, over the bound of 1048576)")
+        );
+    }
+
     /// What `analyse` says on the reference policy. Judged by hand (see the analysis report):
     /// both errors are real gaps of rev 1; the overlaps are deliberate fail-safe ordering.
     #[test]
@@ -1513,7 +1715,7 @@ mod reference {
         let auth = &fs[7];
         assert_eq!(
             auth.message,
-            "`idle_only -> normal` raises authority (idle_request up to 12 % to pedal up to 100 %) while `pedal_a_low`, `pedal_a_high`, `pedal_b_low`, `pedal_b_high` that led into `idle_only` may still be set"
+            "`idle_only -> normal` raises authority (idle_request up to 12 % to pedal up to 100 %) while `pedal_a_low`, `pedal_a_high`, `pedal_b_low`, `pedal_b_high`, which led into `idle_only`, may still be set"
         );
         assert_eq!(
             auth.hint,

@@ -2,6 +2,7 @@
 //! command.
 
 mod check;
+mod findings;
 mod fmt;
 mod robust;
 
