@@ -229,7 +229,11 @@ pub struct Replay {
 
 /// Reads a scenario and its policy (relative to the scenario file unless overridden),
 /// resolves and replays it. Errors come rendered, ready for standard error.
-pub fn replay(path: &str, policy_override: Option<&str>, opts: crate::sim::engine::RunOptions) -> Result<Replay, String> {
+pub fn replay(
+    path: &str,
+    policy_override: Option<&str>,
+    opts: crate::sim::engine::RunOptions,
+) -> Result<Replay, String> {
     let src = Source::read(path)?;
     let (ast, diags) = crate::lang::scenario::parse(&src.text);
     let Some(ast) = ast else {
@@ -243,20 +247,33 @@ pub fn replay(path: &str, policy_override: Option<&str>, opts: crate::sim::engin
                 _ => None,
             });
             let Some(written) = written else {
-                let d = Diagnostic::error("missing-item", ast.name.span, "the scenario names no policy")
-                    .with_label("needs `policy \"FILE\"`")
-                    .with_hint("add `policy \"van_throttle.limp\"` (relative to this file), or pass --policy");
+                let d = Diagnostic::error(
+                    "missing-item",
+                    ast.name.span,
+                    "the scenario names no policy",
+                )
+                .with_label("needs `policy \"FILE\"`")
+                .with_hint(
+                    "add `policy \"van_throttle.limp\"` (relative to this file), or pass --policy",
+                );
                 return Err(diag::render(&src.path, &src.text, &[d]));
             };
-            let base = std::path::Path::new(path).parent().unwrap_or(std::path::Path::new(""));
+            let base = std::path::Path::new(path)
+                .parent()
+                .unwrap_or(std::path::Path::new(""));
             base.join(written).to_string_lossy().into_owned()
         }
     };
     let (_, model, _) = load_policy(&policy_path)?;
-    let script = crate::sim::script::resolve(&ast, &model).map_err(|d| diag::render(&src.path, &src.text, &d))?;
+    let script = crate::sim::script::resolve(&ast, &model)
+        .map_err(|d| diag::render(&src.path, &src.text, &d))?;
     let trace = crate::sim::engine::run(&model, &script, opts)
         .map_err(|e| format!("error: the actuator figures of `{policy_path}` give no usable throttle-body model: {e}\n"))?;
-    Ok(Replay { scenario: src, model, trace })
+    Ok(Replay {
+        scenario: src,
+        model,
+        trace,
+    })
 }
 
 /// `limpet run`: replays each script; exit 1 when any expectation fails.
@@ -293,7 +310,11 @@ pub fn run(paths: &[String], cfg: &RunConfig) -> Outcome {
             }
         }
     }
-    Outcome { stdout, stderr, exit }
+    Outcome {
+        stdout,
+        stderr,
+        exit,
+    }
 }
 
 /// Options of `limpet prove`.
@@ -312,7 +333,11 @@ pub struct ProveConfig {
 fn relative_to(target: &std::path::Path, from: &std::path::Path) -> String {
     use std::path::Component;
     let abs = |p: &std::path::Path| -> std::path::PathBuf {
-        let p = if p.is_absolute() { p.to_path_buf() } else { std::env::current_dir().unwrap_or_default().join(p) };
+        let p = if p.is_absolute() {
+            p.to_path_buf()
+        } else {
+            std::env::current_dir().unwrap_or_default().join(p)
+        };
         let mut out = std::path::PathBuf::new();
         for c in p.components() {
             match c {
@@ -342,7 +367,9 @@ fn relative_to(target: &std::path::Path, from: &std::path::Path) -> String {
 /// Writes a file atomically: a temporary file beside it, then a rename.
 pub fn write_atomically(path: &std::path::Path, text: &str) -> std::io::Result<()> {
     let dir = path.parent().unwrap_or(std::path::Path::new("."));
-    let name = path.file_name().map_or("out".into(), |n| n.to_string_lossy().into_owned());
+    let name = path
+        .file_name()
+        .map_or("out".into(), |n| n.to_string_lossy().into_owned());
     let tmp = dir.join(format!(".{name}.limpet-{}.tmp", std::process::id()));
     std::fs::write(&tmp, text)?;
     std::fs::rename(&tmp, path).inspect_err(|_| {
@@ -377,12 +404,19 @@ pub fn prove(path: &str, cfg: &ProveConfig) -> Outcome {
             b.set_length(total as u64);
             b.set_position(done as u64);
             let secs = started.elapsed().as_secs_f64().max(1e-3);
-            b.set_message(format!("{states} states, {:.0} states/s", states as f64 / secs));
+            b.set_message(format!(
+                "{states} states, {:.0} states/s",
+                states as f64 / secs
+            ));
         }
     };
     let proof = match crate::prove::prove(&m, &cfg.search, &progress) {
         Ok(p) => p,
-        Err(e) => return Outcome::bad_input(format!("error: the actuator figures give no usable throttle-body model: {e}\n")),
+        Err(e) => {
+            return Outcome::bad_input(format!(
+                "error: the actuator figures give no usable throttle-body model: {e}\n"
+            ));
+        }
     };
     if let Some(b) = &bar {
         b.finish_and_clear();
@@ -393,7 +427,10 @@ pub fn prove(path: &str, cfg: &ProveConfig) -> Outcome {
         Format::Markdown => crate::prove::report::markdown(&m, &proof),
         _ => crate::prove::report::text(&m, &proof),
     };
-    let mut stderr = format!("wall time {wall:.2} s, {:.0} states/s\n", proof.states as f64 / wall.max(1e-9));
+    let mut stderr = format!(
+        "wall time {wall:.2} s, {:.0} states/s\n",
+        proof.states as f64 / wall.max(1e-9)
+    );
     if let Some(dir) = &cfg.counterexamples {
         let dirp = std::path::Path::new(dir);
         if let Err(e) = std::fs::create_dir_all(dirp) {
@@ -404,11 +441,18 @@ pub fn prove(path: &str, cfg: &ProveConfig) -> Outcome {
         for (ri, row) in proof.rows.iter().enumerate() {
             for v in &row.result.violations {
                 n += 1;
-                let name = format!("cx{:03}_{}", ri + 1, proof.requirements[v.requirement].short());
+                let name = format!(
+                    "cx{:03}_{}",
+                    ri + 1,
+                    proof.requirements[v.requirement].short()
+                );
                 let text = crate::prove::report::script(&m, &proof, row, v, &name, &policy_rel);
                 let file = dirp.join(format!("{name}.scenario"));
                 if let Err(e) = write_atomically(&file, &text) {
-                    return Outcome::bad_input(format!("error: cannot write `{}`: {e}\n", file.display()));
+                    return Outcome::bad_input(format!(
+                        "error: cannot write `{}`: {e}\n",
+                        file.display()
+                    ));
                 }
             }
         }
@@ -426,5 +470,9 @@ pub fn prove(path: &str, cfg: &ProveConfig) -> Outcome {
     if exit == Exit::Inconclusive {
         stderr.push_str("inconclusive: a bound was hit before a verdict (see the summary)\n");
     }
-    Outcome { stdout, stderr, exit }
+    Outcome {
+        stdout,
+        stderr,
+        exit,
+    }
 }

@@ -132,9 +132,13 @@ enum Command {
 /// Parses `5ms`, `10 ms`, `1.5s`, `250us`.
 fn parse_time(s: &str) -> Result<limpet::time::Time, String> {
     let t = s.trim();
-    let split = t.find(|c: char| !(c.is_ascii_digit() || c == '.')).unwrap_or(t.len());
+    let split = t
+        .find(|c: char| !(c.is_ascii_digit() || c == '.'))
+        .unwrap_or(t.len());
     let (num, unit) = t.split_at(split);
-    let v: f64 = num.parse().map_err(|_| format!("`{s}` is not a time such as `5ms`"))?;
+    let v: f64 = num
+        .parse()
+        .map_err(|_| format!("`{s}` is not a time such as `5ms`"))?;
     let secs = match unit.trim() {
         "s" => v,
         "ms" => v / 1e3,
@@ -164,8 +168,19 @@ fn main() -> ExitCode {
             deny,
         } => app::check(&policy, format.into(), deny.is_some()),
         Command::Graph { policy, format } => app::graph(&policy, format.into()),
-        Command::Run { scenarios, policy, sample, format, quiet } => {
-            let cfg = app::RunConfig { policy, sample_every: sample, format: format.into(), quiet };
+        Command::Run {
+            scenarios,
+            policy,
+            sample,
+            format,
+            quiet,
+        } => {
+            let cfg = app::RunConfig {
+                policy,
+                sample_every: sample,
+                format: format.into(),
+                quiet,
+            };
             app::run(&scenarios, &cfg)
         }
         Command::Prove {
@@ -181,9 +196,10 @@ fn main() -> ExitCode {
             counterexamples,
             format,
         } => {
-            if !(grid > 0.0 && grid <= 100.0) || !(resolution > 0.0 && resolution <= 50.0) {
+            if !(grid > 0.0 && grid <= 100.0 && resolution > 0.0 && resolution <= 50.0) {
                 Outcome::bad_input(
-                    "error: --grid must be in (0, 100] and --resolution in (0, 50] percent\n".into(),
+                    "error: --grid must be in (0, 100] and --resolution in (0, 50] percent\n"
+                        .into(),
                 )
             } else {
                 let search = limpet::prove::Config {
@@ -197,7 +213,12 @@ fn main() -> ExitCode {
                     only,
                 };
                 let progress = std::io::IsTerminal::is_terminal(&std::io::stderr());
-                let cfg = app::ProveConfig { search, format: format.into(), counterexamples, progress };
+                let cfg = app::ProveConfig {
+                    search,
+                    format: format.into(),
+                    counterexamples,
+                    progress,
+                };
                 app::prove(&policy, &cfg)
             }
         }

@@ -50,9 +50,18 @@ impl Default for Config {
 /// A requirement in steps, ready for the search.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Requirement {
-    Excess { limit: f64, steps: u32 },
-    Never { above: f64, unless_driver: Option<f64> },
-    Idle { idle: f64, steps: u32 },
+    Excess {
+        limit: f64,
+        steps: u32,
+    },
+    Never {
+        above: f64,
+        unless_driver: Option<f64>,
+    },
+    Idle {
+        idle: f64,
+        steps: u32,
+    },
 }
 
 impl Requirement {
@@ -60,11 +69,19 @@ impl Requirement {
         let p = |x: f64| crate::time::trim(x);
         let t = |s: u32| Time(model.period.0 * u64::from(s));
         match *self {
-            Requirement::Excess { limit, steps } => format!("excess below {} % within {}", p(limit), t(steps)),
-            Requirement::Never { above, unless_driver: Some(y) } => {
+            Requirement::Excess { limit, steps } => {
+                format!("excess below {} % within {}", p(limit), t(steps))
+            }
+            Requirement::Never {
+                above,
+                unless_driver: Some(y),
+            } => {
                 format!("never above {} % unless driver above {} %", p(above), p(y))
             }
-            Requirement::Never { above, unless_driver: None } => format!("never above {} %", p(above)),
+            Requirement::Never {
+                above,
+                unless_driver: None,
+            } => format!("never above {} %", p(above)),
             Requirement::Idle { steps, .. } => format!("idle within {} of release", t(steps)),
         }
     }
@@ -85,18 +102,36 @@ pub fn requirements(model: &Model) -> Vec<Requirement> {
         .iter()
         .flat_map(|a| a.requirements.iter())
         .map(|r| match *r {
-            crate::model::Requirement::Excess { limit, within, .. } => Requirement::Excess { limit, steps: steps(within) },
-            crate::model::Requirement::Never { above, unless_driver, .. } => Requirement::Never { above, unless_driver },
-            crate::model::Requirement::IdleAfterRelease { within, .. } => {
-                Requirement::Idle { idle: model.actuator.idle, steps: steps(within) }
-            }
+            crate::model::Requirement::Excess { limit, within, .. } => Requirement::Excess {
+                limit,
+                steps: steps(within),
+            },
+            crate::model::Requirement::Never {
+                above,
+                unless_driver,
+                ..
+            } => Requirement::Never {
+                above,
+                unless_driver,
+            },
+            crate::model::Requirement::IdleAfterRelease { within, .. } => Requirement::Idle {
+                idle: model.actuator.idle,
+                steps: steps(within),
+            },
         })
         .collect()
 }
 
 /// Faults no throttle policy can correct: the plate does not move whatever the drive does.
 pub fn uncorrectable(inj: &[Injection]) -> bool {
-    inj.iter().any(|i| matches!(i, Injection::Actuator { fault: ActuatorFault::Stuck }))
+    inj.iter().any(|i| {
+        matches!(
+            i,
+            Injection::Actuator {
+                fault: ActuatorFault::Stuck
+            }
+        )
+    })
 }
 
 /// One row of the reaction matrix.
@@ -125,7 +160,9 @@ pub struct Proof {
 impl Proof {
     /// A requirement is violated by a correctable fault.
     pub fn violated(&self) -> bool {
-        self.rows.iter().any(|r| !r.uncorrectable && !r.result.violations.is_empty())
+        self.rows
+            .iter()
+            .any(|r| !r.uncorrectable && !r.result.violations.is_empty())
     }
 
     pub fn inconclusive(&self) -> bool {
@@ -134,10 +171,17 @@ impl Proof {
 }
 
 /// Runs the proof; `progress` is told after each fault (done, total, states so far).
-pub fn prove(model: &Model, cfg: &Config, progress: &(dyn Fn(usize, usize, usize) + Sync)) -> Result<Proof, crate::plant::PlantError> {
+pub fn prove(
+    model: &Model,
+    cfg: &Config,
+    progress: &(dyn Fn(usize, usize, usize) + Sync),
+) -> Result<Proof, crate::plant::PlantError> {
     let vehicle = Vehicle::new(model)?;
     let reqs = requirements(model);
-    let scope = cfg.scope.or(model.assure.as_ref().map(|a| a.faults)).unwrap_or(FaultScope::Single);
+    let scope = cfg
+        .scope
+        .or(model.assure.as_ref().map(|a| a.faults))
+        .unwrap_or(FaultScope::Single);
     let pre = search::pre_fault(&vehicle, cfg);
     let mut space = space::fault_space(model);
     if let Some(only) = &cfg.only {
@@ -159,16 +203,28 @@ pub fn prove(model: &Model, cfg: &Config, progress: &(dyn Fn(usize, usize, usize
     let total = sets.len();
     let run = |set: &Vec<Injection>| {
         let result = search::search_fault(&vehicle, &pre, set, cfg, &reqs);
-        let seen_by = if set.len() == 1 { space::seen_by(model, &set[0]) } else { Vec::new() };
-        let s = states.fetch_add(result.states, std::sync::atomic::Ordering::Relaxed) + result.states;
+        let seen_by = if set.len() == 1 {
+            space::seen_by(model, &set[0])
+        } else {
+            Vec::new()
+        };
+        let s =
+            states.fetch_add(result.states, std::sync::atomic::Ordering::Relaxed) + result.states;
         let d = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
         progress(d, total, s);
-        Row { faults: set.clone(), seen_by, uncorrectable: uncorrectable(set), result }
+        Row {
+            faults: set.clone(),
+            seen_by,
+            uncorrectable: uncorrectable(set),
+            result,
+        }
     };
     let rows: Vec<Row> = if cfg.jobs == 1 {
         sets.iter().map(run).collect()
     } else {
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(cfg.jobs).build();
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(cfg.jobs)
+            .build();
         match pool {
             Ok(p) => p.install(|| sets.par_iter().map(run).collect()),
             Err(_) => sets.iter().map(run).collect(),

@@ -9,7 +9,11 @@ use crate::time::{Time, trim};
 use std::fmt::Write;
 
 fn fault_text(m: &Model, row: &Row) -> String {
-    row.faults.iter().map(|i| describe(m, i)).collect::<Vec<_>>().join(" + ")
+    row.faults
+        .iter()
+        .map(|i| describe(m, i))
+        .collect::<Vec<_>>()
+        .join(" + ")
 }
 
 fn ms(t: Option<Time>) -> String {
@@ -17,11 +21,25 @@ fn ms(t: Option<Time>) -> String {
 }
 
 fn names(m: &Model, fs: &[usize]) -> String {
-    if fs.is_empty() { "-".into() } else { fs.iter().map(|&f| m.faults[f].name.as_str()).collect::<Vec<_>>().join(",") }
+    if fs.is_empty() {
+        "-".into()
+    } else {
+        fs.iter()
+            .map(|&f| m.faults[f].name.as_str())
+            .collect::<Vec<_>>()
+            .join(",")
+    }
 }
 
 fn mode_names(m: &Model, ms: &[usize]) -> String {
-    if ms.is_empty() { "-".into() } else { ms.iter().map(|&x| m.modes[x].name.as_str()).collect::<Vec<_>>().join(",") }
+    if ms.is_empty() {
+        "-".into()
+    } else {
+        ms.iter()
+            .map(|&x| m.modes[x].name.as_str())
+            .collect::<Vec<_>>()
+            .join(",")
+    }
 }
 
 /// `ok`, `VIOLATED` or `?` (bound hit) per requirement.
@@ -44,12 +62,24 @@ fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
     let r = &row.result;
     let mut c = vec![
         fault_text(m, row),
-        if row.faults.len() == 1 { names(m, &row.seen_by) } else { "".into() },
+        if row.faults.len() == 1 {
+            names(m, &row.seen_by)
+        } else {
+            "".into()
+        },
         names(m, &r.monitors),
-        if r.monitors.is_empty() { "-".into() } else { ms(r.worst_detection) },
+        if r.monitors.is_empty() {
+            "-".into()
+        } else {
+            ms(r.worst_detection)
+        },
         mode_names(m, &r.end_modes),
         ms(r.to_safe),
-        format!("{:.1} % / {}", r.worst_excess.max(0.0), ms(Some(r.worst_excess_duration))),
+        format!(
+            "{:.1} % / {}",
+            r.worst_excess.max(0.0),
+            ms(Some(r.worst_excess_duration))
+        ),
         format!("{:.1} %", r.worst_opening_below_ceiling),
         ms(Some(r.worst_idle_after_release)),
     ];
@@ -91,7 +121,11 @@ pub fn coverage(m: &Model, p: &Proof) -> String {
         p.states,
         p.pre_states,
         trim(c.grid),
-        if c.free_pedal { ", pedal free" } else { ", pedal at most one grid step per period" },
+        if c.free_pedal {
+            ", pedal free"
+        } else {
+            ", pedal at most one grid step per period"
+        },
         trim(c.resolution),
         c.horizon
     )
@@ -99,9 +133,15 @@ pub fn coverage(m: &Model, p: &Proof) -> String {
 
 /// The static pre-pass, listed before the search results.
 pub fn prepass(m: &Model, p: &Proof) -> String {
-    let mut o = String::from("static pre-pass: faults no monitor can see at any steady pedal and plate position\n");
+    let mut o = String::from(
+        "static pre-pass: faults no monitor can see at any steady pedal and plate position\n",
+    );
     let mut n = 0;
-    for row in p.rows.iter().filter(|r| r.faults.len() == 1 && r.seen_by.is_empty()) {
+    for row in p
+        .rows
+        .iter()
+        .filter(|r| r.faults.len() == 1 && r.seen_by.is_empty())
+    {
         let _ = writeln!(o, "  {}", fault_text(m, row));
         n += 1;
     }
@@ -113,7 +153,9 @@ pub fn prepass(m: &Model, p: &Proof) -> String {
 
 fn table(rows: &[Vec<String>], markdown: bool) -> String {
     let n = rows.first().map_or(0, |r| r.len());
-    let w: Vec<usize> = (0..n).map(|i| rows.iter().map(|r| r[i].chars().count()).max().unwrap_or(0)).collect();
+    let w: Vec<usize> = (0..n)
+        .map(|i| rows.iter().map(|r| r[i].chars().count()).max().unwrap_or(0))
+        .collect();
     let mut o = String::new();
     for (k, r) in rows.iter().enumerate() {
         if markdown {
@@ -123,7 +165,11 @@ fn table(rows: &[Vec<String>], markdown: bool) -> String {
                 let _ = writeln!(o, "|{}|", vec!["---"; n].join("|"));
             }
         } else {
-            let line: Vec<String> = r.iter().enumerate().map(|(i, c)| format!("{c:<width$}", width = w[i])).collect();
+            let line: Vec<String> = r
+                .iter()
+                .enumerate()
+                .map(|(i, c)| format!("{c:<width$}", width = w[i]))
+                .collect();
             let _ = writeln!(o, "{}", line.join("  ").trim_end());
         }
     }
@@ -137,9 +183,18 @@ pub fn stories(m: &Model, p: &Proof) -> String {
         for v in &row.result.violations {
             let req = p.requirements[v.requirement].text(m);
             let inject = Time(m.period.0 * u64::from(v.inject_step));
-            let class = if row.uncorrectable { " (no throttle policy can correct this fault)" } else { "" };
+            let class = if row.uncorrectable {
+                " (no throttle policy can correct this fault)"
+            } else {
+                ""
+            };
             let _ = writeln!(o, "violated: {req}{class}");
-            let _ = writeln!(o, "  fault {} injected at {}", fault_text(m, row), secs(inject));
+            let _ = writeln!(
+                o,
+                "  fault {} injected at {}",
+                fault_text(m, row),
+                secs(inject)
+            );
             let start = v.pedal.get(v.inject_step as usize).copied().unwrap_or(0.0);
             let last = v.pedal.last().copied().unwrap_or(0.0);
             let _ = writeln!(
@@ -150,7 +205,13 @@ pub fn stories(m: &Model, p: &Proof) -> String {
                 secs(v.at),
                 v.pedal.len()
             );
-            let _ = writeln!(o, "  opening {:.2} % at {} where the bound is {:.2} %", v.opening, secs(v.at), v.bound);
+            let _ = writeln!(
+                o,
+                "  opening {:.2} % at {} where the bound is {:.2} %",
+                v.opening,
+                secs(v.at),
+                v.bound
+            );
         }
     }
     o
@@ -181,7 +242,11 @@ pub fn text(m: &Model, p: &Proof) -> String {
 pub fn summary(m: &Model, p: &Proof) -> String {
     let mut o = String::new();
     for (ri, r) in p.requirements.iter().enumerate() {
-        let bad: Vec<&Row> = p.rows.iter().filter(|row| row.result.violations.iter().any(|v| v.requirement == ri)).collect();
+        let bad: Vec<&Row> = p
+            .rows
+            .iter()
+            .filter(|row| row.result.violations.iter().any(|v| v.requirement == ri))
+            .collect();
         let correctable = bad.iter().filter(|r| !r.uncorrectable).count();
         let verdict = if correctable > 0 {
             format!("VIOLATED by {correctable} fault set(s)")
@@ -191,18 +256,29 @@ pub fn summary(m: &Model, p: &Proof) -> String {
             "holds".into()
         };
         let extra = if bad.len() > correctable {
-            format!("; violated by {} uncorrectable actuator fault(s)", bad.len() - correctable)
+            format!(
+                "; violated by {} uncorrectable actuator fault(s)",
+                bad.len() - correctable
+            )
         } else {
             String::new()
         };
         let _ = writeln!(o, "{}: {verdict}{extra}", r.text(m));
     }
     if p.pre_truncated {
-        let _ = writeln!(o, "bound hit: the fault-free set exceeded --max-states {}", p.config.max_states);
+        let _ = writeln!(
+            o,
+            "bound hit: the fault-free set exceeded --max-states {}",
+            p.config.max_states
+        );
     }
     let truncated = p.rows.iter().filter(|r| r.result.truncated).count();
     if truncated > 0 {
-        let _ = writeln!(o, "bound hit: {truncated} fault search(es) exceeded --max-states {}", p.config.max_states);
+        let _ = writeln!(
+            o,
+            "bound hit: {truncated} fault search(es) exceeded --max-states {}",
+            p.config.max_states
+        );
     }
     let _ = writeln!(o, "{}", coverage(m, p));
     o.push_str("limpet is a design aid, not a safety case: these verdicts hold for this model, catalogue, grid and horizon only.\n");
@@ -273,11 +349,25 @@ pub fn json(m: &Model, p: &Proof) -> String {
 }
 
 /// A violation as a scenario script that `limpet run --policy POLICY FILE` replays.
-pub fn script(m: &Model, p: &Proof, row: &Row, v: &Violation, name: &str, policy_path: &str) -> String {
+pub fn script(
+    m: &Model,
+    p: &Proof,
+    row: &Row,
+    v: &Violation,
+    name: &str,
+    policy_path: &str,
+) -> String {
     let req = p.requirements[v.requirement].text(m);
     let mut o = String::new();
-    let _ = writeln!(o, "# Counterexample from limpet prove: {} breaks `{req}`.", fault_text(m, row));
-    let _ = writeln!(o, "# The driver's pedal moves on the prover's grid, one value per controller period.");
+    let _ = writeln!(
+        o,
+        "# Counterexample from limpet prove: {} breaks `{req}`.",
+        fault_text(m, row)
+    );
+    let _ = writeln!(
+        o,
+        "# The driver's pedal moves on the prover's grid, one value per controller period."
+    );
     let _ = writeln!(o, "scenario {name} {{");
     let _ = writeln!(o, "  policy \"{policy_path}\"");
     let _ = writeln!(o, "  length {}", v.at + m.period);
@@ -298,7 +388,13 @@ pub fn script(m: &Model, p: &Proof, row: &Row, v: &Violation, name: &str, policy
     let _ = writeln!(o);
     // The bound, rounded towards the side the opening broke it on, so the replay fails there.
     let x = (v.bound * 100.0).floor() / 100.0;
-    let _ = writeln!(o, "  expect opening at most {} % from {} to {}", trim(x), v.at, v.at);
+    let _ = writeln!(
+        o,
+        "  expect opening at most {} % from {} to {}",
+        trim(x),
+        v.at,
+        v.at
+    );
     let _ = writeln!(o, "}}");
     o
 }

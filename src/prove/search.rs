@@ -21,7 +21,9 @@ pub fn digest(bytes: &[u8]) -> u128 {
     let mut b: u64 = 0x6c62_272e_07bb_0142;
     for &x in bytes {
         a = (a ^ u64::from(x)).wrapping_mul(0x0000_0100_0000_01b3);
-        b = (b ^ u64::from(x)).wrapping_mul(0x0000_0100_0000_01b3).rotate_left(5);
+        b = (b ^ u64::from(x))
+            .wrapping_mul(0x0000_0100_0000_01b3)
+            .rotate_left(5);
     }
     (u128::from(a) << 64) | u128::from(b)
 }
@@ -78,7 +80,9 @@ pub struct PreSet<'v> {
 /// The pedal grid: `0, g, 2g, ..., 100` percent.
 pub fn grid(cfg: &Config) -> Vec<f64> {
     let n = (100.0 / cfg.grid).round().max(1.0) as usize;
-    (0..=n).map(|i| (i as f64 * 100.0 / n as f64).min(100.0)).collect()
+    (0..=n)
+        .map(|i| (i as f64 * 100.0 / n as f64).min(100.0))
+        .collect()
 }
 
 /// The grid indices the driver may move to from `p`.
@@ -106,7 +110,11 @@ pub fn period_step(sys: &mut System<'_>, model: &Model, pedal: f64, now: Time) {
 }
 
 fn quantise(x: f64, q: f64) -> i32 {
-    if x.is_finite() { (x / q).round() as i32 } else { i32::MIN }
+    if x.is_finite() {
+        (x / q).round() as i32
+    } else {
+        i32::MIN
+    }
 }
 
 /// The encoding of one vehicle: controller state (discrete parts exact, continuous parts
@@ -127,8 +135,16 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
     let model = vehicle.ctl.model();
     let g = grid(cfg);
     let mut visited = Visited::default();
-    let mut index: std::collections::HashMap<u128, u32, BuildHasherDefault<PassThrough>> = Default::default();
-    let root = PreNode { sys: System::new(vehicle), pedal: 0, released: 0, parent: u32::MAX, depth: 0, succ: Vec::new() };
+    let mut index: std::collections::HashMap<u128, u32, BuildHasherDefault<PassThrough>> =
+        Default::default();
+    let root = PreNode {
+        sys: System::new(vehicle),
+        pedal: 0,
+        released: 0,
+        parent: u32::MAX,
+        depth: 0,
+        succ: Vec::new(),
+    };
     let mut nodes = vec![root];
     let mut buf = Vec::with_capacity(256);
     let key = |n: &PreNode<'_>, buf: &mut Vec<u8>| {
@@ -155,8 +171,19 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
         for &a in &acts {
             let mut sys = nodes[i].sys.clone();
             period_step(&mut sys, model, g[usize::from(a)], now);
-            let rel = if a == 0 { (released + 1).min(release_cap) } else { 0 };
-            let child = PreNode { sys, pedal: a, released: rel, parent: i as u32, depth: depth + 1, succ: Vec::new() };
+            let rel = if a == 0 {
+                (released + 1).min(release_cap)
+            } else {
+                0
+            };
+            let child = PreNode {
+                sys,
+                pedal: a,
+                released: rel,
+                parent: i as u32,
+                depth: depth + 1,
+                succ: Vec::new(),
+            };
             let k = key(&child, &mut buf);
             if let Some(&j) = index.get(&k) {
                 succ.push(j);
@@ -264,7 +291,13 @@ fn pedal_path(pre: &PreSet<'_>, mut i: u32, g: &[f64]) -> Vec<f64> {
 
 /// Searches one fault (or a pair: the second injected on top of the first at the same
 /// instant is not what `double` means; pairs are handled by the caller).
-pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection], cfg: &Config, reqs: &[Req]) -> FaultResult {
+pub fn search_fault<'v>(
+    vehicle: &'v Vehicle,
+    pre: &PreSet<'v>,
+    inj: &[Injection],
+    cfg: &Config,
+    reqs: &[Req],
+) -> FaultResult {
     let model = vehicle.ctl.model();
     let g = grid(cfg);
     let period = model.period;
@@ -284,14 +317,22 @@ pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection
     let cycle: u32 = inj
         .iter()
         .filter_map(|i| match i {
-            Injection::Track { fault: TrackFault::Intermittent { every, .. }, .. } => {
-                Some(u32::try_from(every.0.div_ceil(period.0.max(1))).unwrap_or(1).max(1))
-            }
+            Injection::Track {
+                fault: TrackFault::Intermittent { every, .. },
+                ..
+            } => Some(
+                u32::try_from(every.0.div_ceil(period.0.max(1)))
+                    .unwrap_or(1)
+                    .max(1),
+            ),
             _ => None,
         })
         .fold(1, |a, b| a * b / gcd(a, b));
 
-    let mut res = FaultResult { worst_opening_below_ceiling: f64::NEG_INFINITY, ..FaultResult::default() };
+    let mut res = FaultResult {
+        worst_opening_below_ceiling: f64::NEG_INFINITY,
+        ..FaultResult::default()
+    };
     let mut visited = Visited::default();
     let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored node
     let mut frontier: Vec<Node<'v>> = Vec::new();
@@ -323,7 +364,10 @@ pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection
             sys,
             twin: oi as u32,
             pedal: o.pedal,
-            timers: Timers { excess: 0, released: o.released },
+            timers: Timers {
+                excess: 0,
+                released: o.released,
+            },
             since: 0,
             step: o.depth,
             origin: oi as u32,
@@ -364,16 +408,20 @@ pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection
                 let driver = g[usize::from(a)];
                 let (open, open_n) = (sys.opening(), tw.opening());
                 let mut timers = node.timers;
-                timers.released = if a == 0 { (timers.released + 1).min(release_cap) } else { 0 };
+                timers.released = if a == 0 {
+                    (timers.released + 1).min(release_cap)
+                } else {
+                    0
+                };
                 let mut excess_now = false;
                 let since = node.since + 1;
                 let step = node.step + 1;
                 let at = Time(period.0 * u64::from(step));
                 // Monitors and detection.
                 let mut detected = node.detected;
-                for f in 0..model.faults.len() {
+                for (f, seen) in monitor_seen.iter_mut().enumerate() {
                     if sys.fault_set(f) && !tw.fault_set(f) {
-                        monitor_seen[f] = true;
+                        *seen = true;
                         if !detected {
                             detected = true;
                             let t = Time(period.0 * u64::from(since));
@@ -405,7 +453,10 @@ pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection
                                 false
                             }
                         }
-                        Req::Never { above, unless_driver } => {
+                        Req::Never {
+                            above,
+                            unless_driver,
+                        } => {
                             let below = unless_driver.is_none_or(|y| driver <= y);
                             if below && open > res.worst_opening_below_ceiling {
                                 res.worst_opening_below_ceiling = open;
@@ -413,7 +464,10 @@ pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection
                             below && open > above && open_n <= above
                         }
                         Req::Idle { idle, steps } => {
-                            if u32::from(timers.released) >= steps && open > idle && tw.opening() <= idle {
+                            if u32::from(timers.released) >= steps
+                                && open > idle
+                                && tw.opening() <= idle
+                            {
                                 true
                             } else {
                                 if timers.released > 0 && open > idle {
@@ -450,10 +504,21 @@ pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection
                             Req::Never { above, .. } => above,
                             Req::Idle { idle, .. } => idle,
                         };
-                        res.violations.push(Violation { requirement: ri, pedal, inject_step, at, opening: open, bound });
+                        res.violations.push(Violation {
+                            requirement: ri,
+                            pedal,
+                            inject_step,
+                            at,
+                            opening: open,
+                            bound,
+                        });
                     }
                 }
-                timers.excess = if excess_now { (timers.excess + 1).min(excess_cap) } else { 0 };
+                timers.excess = if excess_now {
+                    (timers.excess + 1).min(excess_cap)
+                } else {
+                    0
+                };
                 let child = Node {
                     sys,
                     twin: twin_next,
@@ -485,7 +550,9 @@ pub fn search_fault<'v>(vehicle: &'v Vehicle, pre: &PreSet<'v>, inj: &[Injection
         std::mem::swap(&mut frontier_ids, &mut next_ids);
     }
     res.states = arena.len();
-    res.monitors = (0..model.faults.len()).filter(|&f| monitor_seen[f]).collect();
+    res.monitors = (0..model.faults.len())
+        .filter(|&f| monitor_seen[f])
+        .collect();
     res.end_modes = (0..model.modes.len()).filter(|&m| end_modes[m]).collect();
     if res.worst_opening_below_ceiling == f64::NEG_INFINITY {
         res.worst_opening_below_ceiling = 0.0;

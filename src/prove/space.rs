@@ -17,7 +17,16 @@ struct Steady {
 
 fn steady(model: &Model, positions: &[f64], inj: Option<&Injection>) -> Steady {
     let active: Vec<ActiveFault> = inj
-        .map(|i| ActiveFault::capture(model, *i, Time::ZERO, positions, positions[model.feedback], &[]))
+        .map(|i| {
+            ActiveFault::capture(
+                model,
+                *i,
+                Time::ZERO,
+                positions,
+                positions[model.feedback],
+                &[],
+            )
+        })
         .into_iter()
         .collect();
     let volts = model
@@ -35,7 +44,9 @@ fn steady(model: &Model, positions: &[f64], inj: Option<&Injection>) -> Steady {
 
 fn signal_value(model: &Model, st: &Steady, sig: &Signal, target: f64) -> f64 {
     match *sig {
-        Signal::Track { track } => model.track(track).percent_at(st.volts[track.sensor][track.track]),
+        Signal::Track { track } => model
+            .track(track)
+            .percent_at(st.volts[track.sensor][track.track]),
         Signal::TrackVolts { track } => st.volts[track.sensor][track.track],
         Signal::Merged { sensor } => {
             let vals = model.sensors[sensor]
@@ -60,8 +71,12 @@ fn condition_holds(model: &Model, st: &Steady, e: &Expr, target: f64) -> bool {
         Expr::Compare { term, cmp, .. } => {
             let v = match term {
                 Term::Signal { signal } => signal_value(model, st, signal, target),
-                Term::Diff { a, b } => signal_value(model, st, a, target) - signal_value(model, st, b, target),
-                Term::AbsDiff { a, b } => (signal_value(model, st, a, target) - signal_value(model, st, b, target)).abs(),
+                Term::Diff { a, b } => {
+                    signal_value(model, st, a, target) - signal_value(model, st, b, target)
+                }
+                Term::AbsDiff { a, b } => {
+                    (signal_value(model, st, a, target) - signal_value(model, st, b, target)).abs()
+                }
             };
             cmp_holds(cmp, v)
         }
@@ -81,9 +96,7 @@ pub fn seen_by(model: &Model, inj: &Injection) -> Vec<FaultId> {
     let mut positions = vec![0.0; model.sensors.len()];
     for i in 0..=PREPASS_STEPS {
         let p = 100.0 * i as f64 / PREPASS_STEPS as f64;
-        for s in 0..model.sensors.len() {
-            positions[s] = p;
-        }
+        positions.iter_mut().for_each(|x| *x = p);
         // The loop settles the plate on the demand: pedal and plate positions move together,
         // and the target equals the plate position.
         let _ = driver;
@@ -94,7 +107,9 @@ pub fn seen_by(model: &Model, inj: &Injection) -> Vec<FaultId> {
                 continue;
             }
             let target = p;
-            if condition_holds(model, &broken, &fault.condition, target) && !condition_holds(model, &healthy, &fault.condition, target) {
+            if condition_holds(model, &broken, &fault.condition, target)
+                && !condition_holds(model, &healthy, &fault.condition, target)
+            {
                 seen[f] = true;
             }
         }
@@ -105,12 +120,34 @@ pub fn seen_by(model: &Model, inj: &Injection) -> Vec<FaultId> {
 /// With the parameter of a parametric fault replaced.
 fn with_param(inj: &Injection, x: f64) -> Option<Injection> {
     Some(match *inj {
-        Injection::Track { track, fault: TrackFault::Offset { .. } } => Injection::Track { track, fault: TrackFault::Offset { volts: x } },
-        Injection::Track { track, fault: TrackFault::Gain { .. } } => Injection::Track { track, fault: TrackFault::Gain { factor: x } },
-        Injection::Sensor { sensor, fault: SensorFault::GroundOffset { .. } } => {
-            Injection::Sensor { sensor, fault: SensorFault::GroundOffset { volts: x } }
-        }
-        Injection::Sensor { sensor, fault: SensorFault::Supply { .. } } => Injection::Sensor { sensor, fault: SensorFault::Supply { volts: x } },
+        Injection::Track {
+            track,
+            fault: TrackFault::Offset { .. },
+        } => Injection::Track {
+            track,
+            fault: TrackFault::Offset { volts: x },
+        },
+        Injection::Track {
+            track,
+            fault: TrackFault::Gain { .. },
+        } => Injection::Track {
+            track,
+            fault: TrackFault::Gain { factor: x },
+        },
+        Injection::Sensor {
+            sensor,
+            fault: SensorFault::GroundOffset { .. },
+        } => Injection::Sensor {
+            sensor,
+            fault: SensorFault::GroundOffset { volts: x },
+        },
+        Injection::Sensor {
+            sensor,
+            fault: SensorFault::Supply { .. },
+        } => Injection::Sensor {
+            sensor,
+            fault: SensorFault::Supply { volts: x },
+        },
         _ => return None,
     })
 }
@@ -118,7 +155,13 @@ fn with_param(inj: &Injection, x: f64) -> Option<Injection> {
 /// The largest deviation from the healthy value `neutral` towards `far` that no monitor sees,
 /// by bisection to `tol`; `None` when even the smallest step is seen, or the whole range is
 /// unseen (then `far` itself is in the grid already).
-pub fn worst_undetected(model: &Model, inj: &Injection, neutral: f64, far: f64, tol: f64) -> Option<f64> {
+pub fn worst_undetected(
+    model: &Model,
+    inj: &Injection,
+    neutral: f64,
+    far: f64,
+    tol: f64,
+) -> Option<f64> {
     let seen = |x: f64| with_param(inj, x).is_some_and(|i| !seen_by(model, &i).is_empty());
     if !seen(far) {
         return None;
@@ -146,28 +189,65 @@ pub fn fault_space(model: &Model) -> Vec<Injection> {
     let mut extra = Vec::new();
     for (s, sensor) in model.sensors.iter().enumerate() {
         for t in 0..sensor.tracks.len() {
-            let track = crate::model::TrackRef { sensor: s, track: t };
-            let off = Injection::Track { track, fault: TrackFault::Offset { volts: 0.0 } };
+            let track = crate::model::TrackRef {
+                sensor: s,
+                track: t,
+            };
+            let off = Injection::Track {
+                track,
+                fault: TrackFault::Offset { volts: 0.0 },
+            };
             for far in [model.supply, -model.supply] {
                 if let Some(x) = worst_undetected(model, &off, 0.0, far, 1e-4) {
-                    extra.push(Injection::Track { track, fault: TrackFault::Offset { volts: round_to(x, 1e-4) } });
+                    extra.push(Injection::Track {
+                        track,
+                        fault: TrackFault::Offset {
+                            volts: round_to(x, 1e-4),
+                        },
+                    });
                 }
             }
-            let gain = Injection::Track { track, fault: TrackFault::Gain { factor: 1.0 } };
+            let gain = Injection::Track {
+                track,
+                fault: TrackFault::Gain { factor: 1.0 },
+            };
             for far in [2.0, 0.0] {
                 if let Some(x) = worst_undetected(model, &gain, 1.0, far, 1e-4) {
-                    extra.push(Injection::Track { track, fault: TrackFault::Gain { factor: round_to(x, 1e-4) } });
+                    extra.push(Injection::Track {
+                        track,
+                        fault: TrackFault::Gain {
+                            factor: round_to(x, 1e-4),
+                        },
+                    });
                 }
             }
         }
-        let g = Injection::Sensor { sensor: s, fault: SensorFault::GroundOffset { volts: 0.0 } };
+        let g = Injection::Sensor {
+            sensor: s,
+            fault: SensorFault::GroundOffset { volts: 0.0 },
+        };
         if let Some(x) = worst_undetected(model, &g, 0.0, model.supply, 1e-4) {
-            extra.push(Injection::Sensor { sensor: s, fault: SensorFault::GroundOffset { volts: round_to(x, 1e-4) } });
+            extra.push(Injection::Sensor {
+                sensor: s,
+                fault: SensorFault::GroundOffset {
+                    volts: round_to(x, 1e-4),
+                },
+            });
         }
-        let sup = Injection::Sensor { sensor: s, fault: SensorFault::Supply { volts: model.supply } };
+        let sup = Injection::Sensor {
+            sensor: s,
+            fault: SensorFault::Supply {
+                volts: model.supply,
+            },
+        };
         for far in [2.0 * model.supply, 0.0] {
             if let Some(x) = worst_undetected(model, &sup, model.supply, far, 1e-4) {
-                extra.push(Injection::Sensor { sensor: s, fault: SensorFault::Supply { volts: round_to(x, 1e-4) } });
+                extra.push(Injection::Sensor {
+                    sensor: s,
+                    fault: SensorFault::Supply {
+                        volts: round_to(x, 1e-4),
+                    },
+                });
             }
         }
     }
@@ -199,7 +279,10 @@ mod tests {
     #[test]
     fn worst_undetected_ground_offset_follows_from_limit_and_slopes() {
         let m = reference();
-        let g = Injection::Sensor { sensor: 0, fault: SensorFault::GroundOffset { volts: 0.0 } };
+        let g = Injection::Sensor {
+            sensor: 0,
+            fault: SensorFault::GroundOffset { volts: 0.0 },
+        };
         let x = worst_undetected(&m, &g, 0.0, m.supply, 1e-5).unwrap();
         assert!((x - 0.192).abs() < 1e-3, "worst undetected offset {x} V");
     }
@@ -207,15 +290,24 @@ mod tests {
     #[test]
     fn open_pedal_track_is_seen_by_its_range_check() {
         let m = reference();
-        let inj = Injection::Track { track: m.track_ref("pedal", "a").unwrap(), fault: TrackFault::Open };
-        let seen: Vec<&str> = seen_by(&m, &inj).iter().map(|&f| m.faults[f].name.as_str()).collect();
+        let inj = Injection::Track {
+            track: m.track_ref("pedal", "a").unwrap(),
+            fault: TrackFault::Open,
+        };
+        let seen: Vec<&str> = seen_by(&m, &inj)
+            .iter()
+            .map(|&f| m.faults[f].name.as_str())
+            .collect();
         assert!(seen.contains(&"pedal_a_low"), "{seen:?}");
     }
 
     #[test]
     fn supply_rise_on_the_pedal_is_seen_by_no_monitor_when_small() {
         let m = reference();
-        let inj = Injection::Sensor { sensor: 0, fault: SensorFault::Supply { volts: 5.2 } };
+        let inj = Injection::Sensor {
+            sensor: 0,
+            fault: SensorFault::Supply { volts: 5.2 },
+        };
         assert!(seen_by(&m, &inj).is_empty());
     }
 }

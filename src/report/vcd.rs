@@ -32,7 +32,11 @@ fn timescale(trace: &Trace) -> (u64, &'static str) {
         .map(|s| s.at.0)
         .chain(trace.events.iter().map(|e| e.at.0))
         .fold(0, gcd);
-    SCALES.iter().copied().find(|(ns, _)| g % ns == 0).unwrap_or((1, "1 ns"))
+    SCALES
+        .iter()
+        .copied()
+        .find(|(ns, _)| g % ns == 0)
+        .unwrap_or((1, "1 ns"))
 }
 
 /// Identifier codes: printable ASCII from `!` to `~`, base 94.
@@ -51,7 +55,9 @@ fn ident(mut n: usize) -> String {
 
 /// VCD names may not contain white space.
 fn vcd_name(s: &str) -> String {
-    s.chars().map(|c| if c.is_whitespace() { '_' } else { c }).collect()
+    s.chars()
+        .map(|c| if c.is_whitespace() { '_' } else { c })
+        .collect()
 }
 
 enum Change {
@@ -65,8 +71,19 @@ pub fn write(trace: &Trace) -> String {
     let mut o = String::new();
     let _ = writeln!(o, "$date\n  simulated time, no wall clock\n$end");
     let _ = writeln!(o, "$version\n  limpet {}\n$end", env!("CARGO_PKG_VERSION"));
-    let modes: Vec<String> = trace.modes.iter().enumerate().map(|(i, m)| format!("{i}={m}")).collect();
-    let _ = writeln!(o, "$comment\n  scenario {} policy {}; mode codes: {}\n$end", trace.scenario, trace.policy, modes.join(" "));
+    let modes: Vec<String> = trace
+        .modes
+        .iter()
+        .enumerate()
+        .map(|(i, m)| format!("{i}={m}"))
+        .collect();
+    let _ = writeln!(
+        o,
+        "$comment\n  scenario {} policy {}; mode codes: {}\n$end",
+        trace.scenario,
+        trace.policy,
+        modes.join(" ")
+    );
     let _ = writeln!(o, "$timescale {scale_text} $end");
     let _ = writeln!(o, "$scope module {} $end", vcd_name(&trace.scenario));
     let reals = ["driver", "pedal", "target", "opening", "duty"];
@@ -81,12 +98,22 @@ pub fn write(trace: &Trace) -> String {
     let pending_base = set_base + trace.faults.len();
     let _ = writeln!(o, "$scope module faults $end");
     for (i, f) in trace.faults.iter().enumerate() {
-        let _ = writeln!(o, "$var wire 1 {} {} $end", ident(set_base + i), vcd_name(f));
+        let _ = writeln!(
+            o,
+            "$var wire 1 {} {} $end",
+            ident(set_base + i),
+            vcd_name(f)
+        );
     }
     let _ = writeln!(o, "$upscope $end");
     let _ = writeln!(o, "$scope module pending $end");
     for (i, f) in trace.faults.iter().enumerate() {
-        let _ = writeln!(o, "$var wire 1 {} {} $end", ident(pending_base + i), vcd_name(f));
+        let _ = writeln!(
+            o,
+            "$var wire 1 {} {} $end",
+            ident(pending_base + i),
+            vcd_name(f)
+        );
     }
     let _ = writeln!(o, "$upscope $end");
     let _ = writeln!(o, "$upscope $end");
@@ -111,7 +138,10 @@ pub fn write(trace: &Trace) -> String {
         }
     }
     for (k, s) in trace.samples.iter().enumerate() {
-        for (i, v) in [s.driver, s.pedal, s.target, s.opening, s.duty].into_iter().enumerate() {
+        for (i, v) in [s.driver, s.pedal, s.target, s.opening, s.duty]
+            .into_iter()
+            .enumerate()
+        {
             changes.push((s.at, 1, k, Change::Real(i, v)));
         }
         changes.push((s.at, 1, k, Change::Int(mode_id, s.mode)));
@@ -125,7 +155,10 @@ pub fn write(trace: &Trace) -> String {
     let mut int_now: Option<usize> = None;
     let _ = writeln!(o, "#0\n$dumpvars");
     for (i, _) in reals.iter().enumerate() {
-        let first = trace.samples.first().map_or(0.0, |s| [s.driver, s.pedal, s.target, s.opening, s.duty][i]);
+        let first = trace
+            .samples
+            .first()
+            .map_or(0.0, |s| [s.driver, s.pedal, s.target, s.opening, s.duty][i]);
         let _ = writeln!(o, "r{} {}", fmt_real(first), ident(i));
         reals_now[i] = Some(first);
     }
@@ -135,9 +168,9 @@ pub fn write(trace: &Trace) -> String {
     let first_key = trace.samples.first().is_none_or(|s| s.key_on);
     let _ = writeln!(o, "{}{}", u8::from(first_key), ident(key_id));
     bits_now[key_id] = Some(first_key);
-    for i in set_base..pending_base + trace.faults.len() {
+    for (i, bit) in bits_now.iter_mut().enumerate().skip(set_base) {
         let _ = writeln!(o, "0{}", ident(i));
-        bits_now[i] = Some(false);
+        *bit = Some(false);
     }
     let _ = writeln!(o, "$end");
     let mut last_t: Option<Time> = Some(Time::ZERO);
@@ -191,7 +224,10 @@ mod tests {
     #[test]
     fn identifiers_are_printable_and_distinct() {
         let ids: Vec<String> = (0..300).map(ident).collect();
-        assert!(ids.iter().all(|s| s.bytes().all(|b| (b'!'..=b'~').contains(&b))));
+        assert!(
+            ids.iter()
+                .all(|s| s.bytes().all(|b| (b'!'..=b'~').contains(&b)))
+        );
         let mut sorted = ids.clone();
         sorted.sort();
         sorted.dedup();
@@ -204,6 +240,12 @@ mod tests {
     fn gcd_picks_the_timescale() {
         assert_eq!(gcd(10_000_000, 5_000_000), 5_000_000);
         let g: u64 = 5_000_000;
-        assert_eq!(SCALES.iter().find(|(ns, _)| g % ns == 0).map(|s| s.1), Some("1 ms"));
+        assert_eq!(
+            SCALES
+                .iter()
+                .find(|(ns, _)| g.is_multiple_of(*ns))
+                .map(|s| s.1),
+            Some("1 ms")
+        );
     }
 }

@@ -21,7 +21,9 @@ pub struct RunOptions {
 
 impl Default for RunOptions {
     fn default() -> Self {
-        RunOptions { sample_every: Time::from_ms(10) }
+        RunOptions {
+            sample_every: Time::from_ms(10),
+        }
     }
 }
 
@@ -59,17 +61,30 @@ struct Watch {
 }
 
 /// Replays a script against a model: the trace with every expectation's verdict.
-pub fn run(model: &Model, script: &Script, opts: RunOptions) -> Result<Trace, crate::plant::PlantError> {
+pub fn run(
+    model: &Model,
+    script: &Script,
+    opts: RunOptions,
+) -> Result<Trace, crate::plant::PlantError> {
     let vehicle = Vehicle::new(model)?;
     let mut sys = System::new(&vehicle);
     let period = model.period;
-    let sample_every = if opts.sample_every == Time::ZERO { period } else { opts.sample_every };
+    let sample_every = if opts.sample_every == Time::ZERO {
+        period
+    } else {
+        opts.sample_every
+    };
     let length = script.length;
 
     let mut ramps: Vec<Ramp> = model
         .sensors
         .iter()
-        .map(|_| Ramp { from: 0.0, to: 0.0, t0: Time::ZERO, t1: Time::ZERO })
+        .map(|_| Ramp {
+            from: 0.0,
+            to: 0.0,
+            t0: Time::ZERO,
+            t1: Time::ZERO,
+        })
         .collect();
     let mut trace = Trace {
         scenario: script.name.clone(),
@@ -110,7 +125,9 @@ pub fn run(model: &Model, script: &Script, opts: RunOptions) -> Result<Trace, cr
         // Script events at this instant, in file order.
         while next_event < script.events.len() && script.events[next_event].at <= now {
             let ev = &script.events[next_event];
-            apply(model, &mut sys, &mut ramps, &mut trace, ev.at, &ev.action, now);
+            apply(
+                model, &mut sys, &mut ramps, &mut trace, ev.at, &ev.action, now,
+            );
             next_event += 1;
         }
         // The controller step.
@@ -128,7 +145,11 @@ pub fn run(model: &Model, script: &Script, opts: RunOptions) -> Result<Trace, cr
                         EventKind::FaultSet { fault }
                     }
                     Event::FaultCleared { fault } => EventKind::FaultCleared { fault },
-                    Event::Transition { from, to, transition } => {
+                    Event::Transition {
+                        from,
+                        to,
+                        transition,
+                    } => {
                         watch.mode_since = now;
                         let guard = model
                             .transitions
@@ -164,9 +185,16 @@ pub fn run(model: &Model, script: &Script, opts: RunOptions) -> Result<Trace, cr
         if now >= length {
             break;
         }
-        let next_script = script.events.get(next_event).map_or(length, |e| e.at.max(now));
+        let next_script = script
+            .events
+            .get(next_event)
+            .map_or(length, |e| e.at.max(now));
         let check = checks.get(next_check).copied().unwrap_or(length);
-        let until = next_tick.min(next_sample).min(next_script).min(check).min(length);
+        let until = next_tick
+            .min(next_sample)
+            .min(next_script)
+            .min(check)
+            .min(length);
         // Advance the plate sub-step by sub-step, watching the opening windows on each.
         let step = sys.substep();
         let mut t = now;
@@ -185,13 +213,30 @@ pub fn run(model: &Model, script: &Script, opts: RunOptions) -> Result<Trace, cr
 }
 
 /// Applies one script action at instant `now`.
-fn apply(model: &Model, sys: &mut System, ramps: &mut [Ramp], trace: &mut Trace, at: Time, action: &Action, now: Time) {
+fn apply(
+    model: &Model,
+    sys: &mut System,
+    ramps: &mut [Ramp],
+    trace: &mut Trace,
+    at: Time,
+    action: &Action,
+    now: Time,
+) {
     let _ = at;
     let kind = match action {
-        Action::Position { sensor, percent, over } => {
+        Action::Position {
+            sensor,
+            percent,
+            over,
+        } => {
             let from = ramps[*sensor].at(now);
             let t1 = now + over.unwrap_or(Time::ZERO);
-            ramps[*sensor] = Ramp { from, to: *percent, t0: now, t1 };
+            ramps[*sensor] = Ramp {
+                from,
+                to: *percent,
+                t0: now,
+                t1,
+            };
             let name = &model.sensors[*sensor].name;
             let text = match over {
                 Some(o) => format!("{name} {} % over {o}", crate::time::trim(*percent)),
@@ -206,30 +251,54 @@ fn apply(model: &Model, sys: &mut System, ramps: &mut [Ramp], trace: &mut Trace,
                 sys.set_position(s, r.at(now));
             }
             sys.inject(*inj, now);
-            EventKind::Break { text: faults::describe(model, inj) }
+            EventKind::Break {
+                text: faults::describe(model, inj),
+            }
         }
         Action::Mend { target, fault } => {
-            let mended = sys.mend(|inj| target.covers(inj) && fault.is_none_or(|k| k == super::script::FaultKind::of(inj)));
+            let mended = sys.mend(|inj| {
+                target.covers(inj) && fault.is_none_or(|k| k == super::script::FaultKind::of(inj))
+            });
             let names: Vec<String> = mended.iter().map(|i| faults::describe(model, i)).collect();
-            EventKind::Mend { text: if names.is_empty() { "(nothing broken)".into() } else { names.join(", ") } }
+            EventKind::Mend {
+                text: if names.is_empty() {
+                    "(nothing broken)".into()
+                } else {
+                    names.join(", ")
+                },
+            }
         }
         Action::KeyOff => {
             sys.key_off();
-            EventKind::Script { text: "key off".into() }
+            EventKind::Script {
+                text: "key off".into(),
+            }
         }
         Action::KeyOn => {
             sys.key_on_at(now);
-            EventKind::Script { text: "key on".into() }
+            EventKind::Script {
+                text: "key on".into(),
+            }
         }
         Action::Switch { switch, on } => {
             sys.set_switch(*switch, *on);
             EventKind::Script {
-                text: format!("{} {}", model.switches[*switch].name, if *on { "on" } else { "off" }),
+                text: format!(
+                    "{} {}",
+                    model.switches[*switch].name,
+                    if *on { "on" } else { "off" }
+                ),
             }
         }
         Action::Input { input, percent } => {
             sys.set_input(*input, *percent);
-            EventKind::Script { text: format!("{} {} %", model.inputs[*input].name, crate::time::trim(*percent)) }
+            EventKind::Script {
+                text: format!(
+                    "{} {} %",
+                    model.inputs[*input].name,
+                    crate::time::trim(*percent)
+                ),
+            }
         }
     };
     trace.events.push(TraceEvent { at: now, kind });
@@ -243,10 +312,22 @@ fn judge_step(model: &Model, script: &Script, sys: &System, w: &mut Watch, now: 
         }
         match e.kind {
             ExpectKind::ModeNever { mode } if sys.key_on() && sys.mode() == mode => {
-                w.verdicts[i] = Some((false, now, format!("mode {} became active at {} s", model.modes[mode].name, secs(now))));
+                w.verdicts[i] = Some((
+                    false,
+                    now,
+                    format!(
+                        "mode {} became active at {} s",
+                        model.modes[mode].name,
+                        secs(now)
+                    ),
+                ));
             }
             ExpectKind::FaultNever { fault } if sys.key_on() && sys.fault_set(fault) => {
-                w.verdicts[i] = Some((false, now, format!("fault {} set at {} s", model.faults[fault].name, secs(now))));
+                w.verdicts[i] = Some((
+                    false,
+                    now,
+                    format!("fault {} set at {} s", model.faults[fault].name, secs(now)),
+                ));
             }
             _ => {}
         }
@@ -265,7 +346,11 @@ fn judge_opening(script: &Script, w: &mut Watch, t: Time, opening: f64) {
                     w.extreme[i] = Some((opening, t));
                 }
                 if opening > x + 1e-9 {
-                    w.verdicts[i] = Some((false, t, format!("the opening reached {opening:.2} % at {} s", secs(t))));
+                    w.verdicts[i] = Some((
+                        false,
+                        t,
+                        format!("the opening reached {opening:.2} % at {} s", secs(t)),
+                    ));
                 }
             }
             ExpectKind::OpeningAtLeast { x, from, to } if t >= from && t <= to => {
@@ -273,7 +358,11 @@ fn judge_opening(script: &Script, w: &mut Watch, t: Time, opening: f64) {
                     w.extreme[i] = Some((opening, t));
                 }
                 if opening < x - 1e-9 {
-                    w.verdicts[i] = Some((false, t, format!("the opening fell to {opening:.2} % at {} s", secs(t))));
+                    w.verdicts[i] = Some((
+                        false,
+                        t,
+                        format!("the opening fell to {opening:.2} % at {} s", secs(t)),
+                    ));
                 }
             }
             _ => {}
@@ -295,13 +384,20 @@ fn finish(model: &Model, script: &Script, sys: &System, w: &Watch, length: Time)
         .map(|(i, e)| {
             let (passed, at, why) = match (&w.verdicts[i], e.kind) {
                 (Some((p, at, why)), _) => (*p, *at, why.clone()),
-                (None, ExpectKind::ModeNever { mode }) => {
-                    (true, length, format!("mode {} was never active", model.modes[mode].name))
-                }
-                (None, ExpectKind::FaultNever { fault }) => {
-                    (true, length, format!("fault {} was never set", model.faults[fault].name))
-                }
-                (None, ExpectKind::OpeningAtMost { to, .. } | ExpectKind::OpeningAtLeast { to, .. }) => {
+                (None, ExpectKind::ModeNever { mode }) => (
+                    true,
+                    length,
+                    format!("mode {} was never active", model.modes[mode].name),
+                ),
+                (None, ExpectKind::FaultNever { fault }) => (
+                    true,
+                    length,
+                    format!("fault {} was never set", model.faults[fault].name),
+                ),
+                (
+                    None,
+                    ExpectKind::OpeningAtMost { to, .. } | ExpectKind::OpeningAtLeast { to, .. },
+                ) => {
                     let at = to.min(length);
                     match w.extreme[i] {
                         Some((v, t)) => (true, at, format!("extreme {v:.2} % at {} s", secs(t))),
@@ -311,7 +407,12 @@ fn finish(model: &Model, script: &Script, sys: &System, w: &Watch, length: Time)
                 // `by` expectations are decided at their instant by `decide_by`.
                 (None, _) => (false, length, "the run ended before the instant".into()),
             };
-            Verdict { text: e.text.clone(), passed, decided_at: at, explanation: why }
+            Verdict {
+                text: e.text.clone(),
+                passed,
+                decided_at: at,
+                explanation: why,
+            }
         })
         .collect()
 }
@@ -326,10 +427,15 @@ fn decide_by(model: &Model, script: &Script, sys: &System, w: &mut Watch, now: T
             ExpectKind::FaultBy { fault, by } if by == now => {
                 let name = &model.faults[fault].name;
                 w.verdicts[i] = Some(if sys.fault_set(fault) {
-                    let since = w.fault_set_at[fault].map_or(String::new(), |t| format!(" since {} s", secs(t)));
+                    let since = w.fault_set_at[fault]
+                        .map_or(String::new(), |t| format!(" since {} s", secs(t)));
                     (true, now, format!("{name} set{since}"))
                 } else if sys.fault_pending(fault) {
-                    (false, now, format!("{name} still pending at {} s", secs(now)))
+                    (
+                        false,
+                        now,
+                        format!("{name} still pending at {} s", secs(now)),
+                    )
                 } else {
                     (false, now, format!("{name} not set at {} s", secs(now)))
                 });
@@ -337,9 +443,21 @@ fn decide_by(model: &Model, script: &Script, sys: &System, w: &mut Watch, now: T
             ExpectKind::ModeBy { mode, by } if by == now => {
                 let name = &model.modes[mode].name;
                 w.verdicts[i] = Some(if sys.key_on() && sys.mode() == mode {
-                    (true, now, format!("{name} active since {} s", secs(w.mode_since)))
+                    (
+                        true,
+                        now,
+                        format!("{name} active since {} s", secs(w.mode_since)),
+                    )
                 } else {
-                    (false, now, format!("{} active at {} s, not {name}", model.modes[sys.mode()].name, secs(now)))
+                    (
+                        false,
+                        now,
+                        format!(
+                            "{} active at {} s, not {name}",
+                            model.modes[sys.mode()].name,
+                            secs(now)
+                        ),
+                    )
                 });
             }
             _ => {}

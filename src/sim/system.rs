@@ -18,7 +18,10 @@ pub struct Vehicle {
 
 impl Vehicle {
     pub fn new(model: &Model) -> Result<Vehicle, PlantError> {
-        Ok(Vehicle { ctl: Controller::new(model), params: PlantParams::derive(&model.actuator)? })
+        Ok(Vehicle {
+            ctl: Controller::new(model),
+            params: PlantParams::derive(&model.actuator)?,
+        })
     }
 }
 
@@ -93,7 +96,14 @@ impl<'v> System<'v> {
     /// Breaks something at instant `now`; a stuck fault captures what it freezes now.
     pub fn inject(&mut self, inj: Injection, now: Time) {
         let model = self.ctl.model();
-        let af = ActiveFault::capture(model, inj, now, &self.positions, self.plate.position, &self.active);
+        let af = ActiveFault::capture(
+            model,
+            inj,
+            now,
+            &self.positions,
+            self.plate.position,
+            &self.active,
+        );
         self.active.push(af);
         self.condition = faults::actuator_condition(&self.active);
         if self.condition.stuck_at.is_some() {
@@ -164,7 +174,14 @@ impl<'v> System<'v> {
     /// Advances the plate by `dt` with the duty of the last step.
     pub fn advance_plant(&mut self, _now: Time, dt: Time) {
         let on = self.key && self.out.drive_on;
-        self.plate = plant::advance(&self.params, self.plate, self.out.duty, on, &self.condition, dt);
+        self.plate = plant::advance(
+            self.params,
+            self.plate,
+            self.out.duty,
+            on,
+            &self.condition,
+            dt,
+        );
     }
 
     pub fn substep(&self) -> Time {
@@ -191,7 +208,11 @@ impl<'v> System<'v> {
     }
 
     pub fn duty(&self) -> f64 {
-        if self.key && self.out.drive_on { self.out.duty } else { 0.0 }
+        if self.key && self.out.drive_on {
+            self.out.duty
+        } else {
+            0.0
+        }
     }
 
     pub fn mode(&self) -> usize {

@@ -32,13 +32,29 @@ pub struct TraceEvent {
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum EventKind {
     /// A script action other than a fault: `pedal 35 % over 300 ms`, `key off`, `brake on`.
-    Script { text: String },
-    Break { text: String },
-    Mend { text: String },
-    FaultPending { fault: usize },
-    FaultSet { fault: usize },
-    FaultCleared { fault: usize },
-    Transition { from: usize, to: usize, guard: String },
+    Script {
+        text: String,
+    },
+    Break {
+        text: String,
+    },
+    Mend {
+        text: String,
+    },
+    FaultPending {
+        fault: usize,
+    },
+    FaultSet {
+        fault: usize,
+    },
+    FaultCleared {
+        fault: usize,
+    },
+    Transition {
+        from: usize,
+        to: usize,
+        guard: String,
+    },
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
@@ -117,7 +133,11 @@ impl Trace {
                 "t [s]", "driver%", "pedal%", "target%", "open%", "duty%"
             );
             for s in &self.samples {
-                let mode = if s.key_on { self.modes.get(s.mode).map_or("?", |m| m.as_str()) } else { "(key off)" };
+                let mode = if s.key_on {
+                    self.modes.get(s.mode).map_or("?", |m| m.as_str())
+                } else {
+                    "(key off)"
+                };
                 let _ = writeln!(
                     o,
                     "{} {:>8.2} {:>8.2} {:>8.2} {:>8.2} {:>8.2}  {}",
@@ -210,7 +230,8 @@ impl Trace {
 
     /// CSV: a header row with units, one row per sample.
     pub fn to_csv(&self) -> String {
-        let mut o = String::from("t_s,driver_pct,pedal_pct,target_pct,opening_pct,duty_pct,mode,key_on\n");
+        let mut o =
+            String::from("t_s,driver_pct,pedal_pct,target_pct,opening_pct,duty_pct,mode,key_on\n");
         for s in &self.samples {
             let mode = self.modes.get(s.mode).map_or("", |m| m.as_str());
             let _ = writeln!(
