@@ -314,9 +314,22 @@ pub fn describe(model: &Model, inj: &Injection) -> String {
 
 /// Intermittent opens the catalogue tries, as (open, every) in milliseconds: a dropout
 /// shorter than the usual 20 ms debounce, a half-duty chatter, and one long enough to set.
-pub const INTERMITTENT_GRID: [(u64, u64); 3] = [(10, 100), (20, 40), (50, 100)];
+pub const INTERMITTENT_GRID: [(u64, u64); 2] = [(10, 100), (50, 100)];
 /// `weak` factors the catalogue tries.
 pub const WEAK_GRID: [f64; 3] = [0.25, 0.5, 0.75];
+
+/// Offsets on a track, volts: small, moderate and gross, both ways. The prover adds the worst
+/// value just inside each detection threshold, so the grid need not be fine.
+pub const OFFSET_GRID: [f64; 6] = [-1.0, -0.5, -0.2, 0.2, 0.5, 1.0];
+
+/// Gains on a track (1.0 is healthy).
+pub const GAIN_GRID: [f64; 4] = [0.5, 0.8, 1.2, 1.5];
+
+/// Sensor ground lifts, volts.
+pub const GROUND_GRID: [f64; 3] = [0.2, 0.5, 1.0];
+
+/// Sensor supply levels as fractions of the nominal supply.
+pub const SUPPLY_GRID: [f64; 3] = [0.8, 0.9, 1.1];
 
 /// The single-fault space of a policy, in a fixed order: sensor by sensor, each track's
 /// faults (`open`, `short ground`, `short supply`, `stuck`, offsets -1.0 V .. +1.0 V in
@@ -340,15 +353,11 @@ pub fn catalogue(model: &Model) -> Vec<Injection> {
             push(TrackFault::ShortGround);
             push(TrackFault::ShortSupply);
             push(TrackFault::Stuck);
-            for i in (-10..=10).filter(|&i| i != 0) {
-                push(TrackFault::Offset {
-                    volts: f64::from(i) / 10.0,
-                });
+            for volts in OFFSET_GRID {
+                push(TrackFault::Offset { volts });
             }
-            for pct in (50..=150).step_by(10).filter(|&p| p != 100) {
-                push(TrackFault::Gain {
-                    factor: f64::from(pct) / 100.0,
-                });
+            for factor in GAIN_GRID {
+                push(TrackFault::Gain { factor });
             }
             for (open, every) in INTERMITTENT_GRID {
                 push(TrackFault::Intermittent {
@@ -365,14 +374,12 @@ pub fn catalogue(model: &Model) -> Vec<Injection> {
                 });
             }
         }
-        for i in 1..=10 {
-            let fault = SensorFault::GroundOffset {
-                volts: f64::from(i) / 10.0,
-            };
+        for volts in GROUND_GRID {
+            let fault = SensorFault::GroundOffset { volts };
             out.push(Injection::Sensor { sensor: s, fault });
         }
-        for i in 40..=55 {
-            let volts = f64::from(i) / 10.0;
+        for ratio in SUPPLY_GRID {
+            let volts = ratio * model.supply;
             if (volts - model.supply).abs() > 1e-9 {
                 let fault = SensorFault::Supply { volts };
                 out.push(Injection::Sensor { sensor: s, fault });
@@ -743,9 +750,9 @@ mod tests {
     fn catalogue_covers_the_single_fault_space_once() {
         let m = reference();
         let all = catalogue(&m);
-        // Per track 4 + 20 offsets + 10 gains + 3 intermittent, plus one bridge per pair;
-        // per sensor 10 ground offsets + 15 supplies; 5 actuator faults.
-        let per_sensor = 2 * 37 + 1 + 10 + 15;
+        // Per track 4 + 6 offsets + 4 gains + 2 intermittent, plus one bridge per pair;
+        // per sensor 3 ground offsets + 3 supplies; 5 actuator faults.
+        let per_sensor = 2 * 16 + 1 + 3 + 3;
         assert_eq!(all.len(), 2 * per_sensor + 5);
         let text: Vec<String> = all.iter().map(|i| describe(&m, i)).collect();
         let mut unique = text.clone();
@@ -754,7 +761,7 @@ mod tests {
         assert_eq!(unique.len(), text.len(), "no fault twice");
         for want in [
             "pedal.a offset -1 V",
-            "pedal.a offset +0.1 V",
+            "pedal.a offset +0.2 V",
             "pedal.b gain 150 %",
             "pedal.a bridged pedal.b",
             "throttle.b intermittent open 50 ms every 100 ms",

@@ -85,16 +85,16 @@ enum Command {
         /// The policy file (.limp).
         policy: String,
         /// Pedal grid step in percent.
-        #[arg(long, default_value_t = 5.0)]
+        #[arg(long, default_value_t = 10.0)]
         grid: f64,
         /// Quantisation of continuous states in percent.
-        #[arg(long, default_value_t = 1.0)]
+        #[arg(long, default_value_t = 10.0)]
         resolution: f64,
         /// Time followed after each injection, e.g. `1.5s`.
-        #[arg(long, value_parser = parse_time, default_value = "1.5s")]
+        #[arg(long, value_parser = parse_time, default_value = "1.2s")]
         horizon: limpet::time::Time,
         /// Bound on stored states per search; hitting it makes the verdict inconclusive.
-        #[arg(long, default_value_t = 2_000_000)]
+        #[arg(long, default_value_t = 400_000)]
         max_states: usize,
         /// Threads (0: one per core). Output does not depend on it.
         #[arg(long, default_value_t = 0)]

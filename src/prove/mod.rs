@@ -35,10 +35,10 @@ pub struct Config {
 impl Default for Config {
     fn default() -> Self {
         Config {
-            grid: 5.0,
-            resolution: 1.0,
-            horizon: Time::from_ms(1500),
-            max_states: 2_000_000,
+            grid: 10.0,
+            resolution: 10.0,
+            horizon: Time::from_ms(1200),
+            max_states: 400_000,
             free_pedal: false,
             jobs: 0,
             scope: None,

@@ -151,7 +151,6 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
         buf.clear();
         encode_system(&n.sys, model, cfg.resolution, buf);
         buf.push(n.pedal);
-        buf.extend_from_slice(&n.released.to_le_bytes());
         digest(buf)
     };
     let k0 = key(&nodes[0], &mut buf);
@@ -159,11 +158,12 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
     index.insert(k0, 0);
     let release_cap = release_cap(model, cfg);
     let mut acts = Vec::new();
-    let mut next = 0usize;
+    // A state reached again with the pedal released for longer is more dangerous for the
+    // release-to-idle requirement (it reaches the limit sooner): it replaces the stored one
+    // and is expanded again, so the release timer need not be part of the visited key.
+    let mut queue: std::collections::VecDeque<usize> = std::collections::VecDeque::from([0]);
     let mut truncated = false;
-    while next < nodes.len() {
-        let i = next;
-        next += 1;
+    while let Some(i) = queue.pop_front() {
         let (pedal, depth, released) = (nodes[i].pedal, nodes[i].depth, nodes[i].released);
         let now = Time(model.period.0 * u64::from(depth));
         actions(cfg, pedal, g.len(), &mut acts);
@@ -186,6 +186,15 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
             };
             let k = key(&child, &mut buf);
             if let Some(&j) = index.get(&k) {
+                if child.released > nodes[j as usize].released && !is_ancestor(&nodes, j, i as u32)
+                {
+                    let old = &mut nodes[j as usize];
+                    old.released = child.released;
+                    old.parent = i as u32;
+                    old.depth = child.depth;
+                    old.sys = child.sys;
+                    queue.push_back(j as usize);
+                }
                 succ.push(j);
                 continue;
             }
@@ -198,11 +207,23 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
             let j = nodes.len() as u32;
             index.insert(k, j);
             nodes.push(child);
+            queue.push_back(j as usize);
             succ.push(j);
         }
         nodes[i].succ = succ;
     }
     PreSet { nodes, truncated }
+}
+
+/// Whether `a` is `b` or one of its ancestors in the pre-fault tree.
+fn is_ancestor(nodes: &[PreNode<'_>], a: u32, mut b: u32) -> bool {
+    while b != u32::MAX {
+        if a == b {
+            return true;
+        }
+        b = nodes[b as usize].parent;
+    }
+    false
 }
 
 pub fn release_cap(model: &Model, cfg: &Config) -> u16 {
@@ -224,8 +245,10 @@ pub fn release_cap(model: &Model, cfg: &Config) -> u16 {
 /// A joint state: the faulty vehicle, the index of its fault-free twin in the pre-fault set,
 /// the pedal, the requirement timers, and the steps since injection.
 #[derive(Clone, Debug)]
-struct Node<'v> {
-    sys: System<'v>,
+struct Node {
+    /// The faulty controller's memory and plate; its active faults are its origin's.
+    st: crate::controller::State,
+    plate: crate::plant::PlantState,
     twin: u32,
     pedal: u8,
     timers: Timers,
@@ -274,8 +297,74 @@ pub struct FaultResult {
     pub worst_opening_below_ceiling: f64,
     /// Longest time from release to idle (the horizon when it never idles).
     pub worst_idle_after_release: Time,
-    /// The first (shortest) violation per requirement.
+    /// The first (shortest) violation per requirement, each confirmed by an exact replay.
     pub violations: Vec<Violation>,
+    /// Candidate violations that the exact replay of their path did not confirm (an effect of
+    /// merging states at the resolution).
+    pub unconfirmed: usize,
+}
+
+/// How many candidate violations of one requirement are replayed before the search gives up
+/// confirming that requirement for this fault.
+pub const MAX_CONFIRMATIONS: usize = 64;
+
+/// Replays a pedal path exactly, with the faults injected at the start of `inject_step`, beside
+/// the fault-free vehicle, and returns the first violation of requirement `r` on it.
+pub fn confirm(
+    vehicle: &Vehicle,
+    inj: &[Injection],
+    pedal: &[f64],
+    inject_step: u32,
+    ri: usize,
+    r: &Req,
+) -> Option<Violation> {
+    let model = vehicle.ctl.model();
+    let period = model.period;
+    let mut faulty = System::new(vehicle);
+    let mut nominal = System::new(vehicle);
+    let (mut excess, mut released) = (0u32, 0u32);
+    for (k, &p) in pedal.iter().enumerate() {
+        let now = Time(period.0 * k as u64);
+        if k == inject_step as usize {
+            for i in inj {
+                faulty.inject(*i, now);
+            }
+        }
+        period_step(&mut faulty, model, p, now);
+        period_step(&mut nominal, model, p, now);
+        released = if p == 0.0 { released + 1 } else { 0 };
+        if (k as u32) < inject_step {
+            continue;
+        }
+        let (open, open_n) = (faulty.opening(), nominal.opening());
+        let at = Time(period.0 * (k as u64 + 1));
+        let hit = match *r {
+            Req::Excess { limit, steps } => {
+                let base = open_n.max(model.actuator.default);
+                excess = if open - base > limit { excess + 1 } else { 0 };
+                (excess > steps).then_some(base + limit)
+            }
+            Req::Never {
+                above,
+                unless_driver,
+            } => (unless_driver.is_none_or(|y| p <= y) && open > above && open_n <= above)
+                .then_some(above),
+            Req::Idle { idle, steps } => {
+                (released >= steps && open > idle && open_n <= idle).then_some(idle)
+            }
+        };
+        if let Some(bound) = hit {
+            return Some(Violation {
+                requirement: ri,
+                pedal: pedal[..=k].to_vec(),
+                inject_step,
+                at,
+                opening: open,
+                bound,
+            });
+        }
+    }
+    None
 }
 
 fn pedal_path(pre: &PreSet<'_>, mut i: u32, g: &[f64]) -> Vec<f64> {
@@ -333,21 +422,33 @@ pub fn search_fault<'v>(
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         ..FaultResult::default()
     };
-    let mut visited = Visited::default();
+    // Visited states with the longest release time each was reached with (see `pre_fault`).
+    let mut visited: std::collections::HashMap<u128, u16, BuildHasherDefault<PassThrough>> =
+        Default::default();
     let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored node
-    let mut frontier: Vec<Node<'v>> = Vec::new();
+    let mut frontier: Vec<Node> = Vec::new();
+    // The active faults of each root, captured at its injection instant.
+    let mut root_faults: Vec<Vec<crate::faults::ActiveFault>> = Vec::new();
     let mut buf = Vec::with_capacity(512);
     let mut monitor_seen = vec![false; model.faults.len()];
     let mut end_modes = vec![false; model.modes.len()];
     let mut found = vec![false; reqs.len()];
+    let mut tries = vec![0usize; reqs.len()];
 
-    let key = |n: &Node<'_>, buf: &mut Vec<u8>| {
+    let key = |n: &Node, buf: &mut Vec<u8>| {
         buf.clear();
-        encode_system(&n.sys, model, cfg.resolution, buf);
-        buf.extend_from_slice(&n.twin.to_le_bytes());
+        buf.push(1);
+        n.st.encode(model, cfg.resolution, buf);
+        buf.extend_from_slice(&quantise(n.plate.position, cfg.resolution).to_le_bytes());
+        buf.extend_from_slice(&quantise(n.plate.velocity, cfg.resolution * 40.0).to_le_bytes());
+        // The twin enters the key through its plate only (opening and speed, quantised): pairing
+        // it exactly multiplies the state space by the fault-free set. Violations found with a
+        // merged twin are confirmed by an exact replay before they are reported.
+        let twin = pre.nodes[n.twin as usize].sys.plate();
+        buf.extend_from_slice(&quantise(twin.position, cfg.resolution).to_le_bytes());
+        buf.extend_from_slice(&quantise(twin.velocity, cfg.resolution * 40.0).to_le_bytes());
         buf.push(n.pedal);
         buf.extend_from_slice(&n.timers.excess.to_le_bytes());
-        buf.extend_from_slice(&n.timers.released.to_le_bytes());
         buf.push(u8::from(n.detected));
         buf.extend_from_slice(&((n.since) % cycle).to_le_bytes());
         digest(buf)
@@ -360,8 +461,14 @@ pub fn search_fault<'v>(
         for i in inj {
             sys.inject(*i, now);
         }
+        let Some(st) = sys.controller_state().cloned() else {
+            // The key-on state before the first step: its first step is explored from the
+            // fault-free set's first successors instead.
+            continue;
+        };
         let n = Node {
-            sys,
+            st,
+            plate: sys.plate(),
             twin: oi as u32,
             pedal: o.pedal,
             timers: Timers {
@@ -370,16 +477,22 @@ pub fn search_fault<'v>(
             },
             since: 0,
             step: o.depth,
-            origin: oi as u32,
+            origin: root_faults.len() as u32,
             detected: false,
         };
         let k = key(&n, &mut buf);
-        if visited.insert(k) {
-            arena.push((u32::MAX, n.pedal, n.origin));
+        if visited.insert(k, n.timers.released).is_none() {
+            arena.push((u32::MAX, n.pedal, oi as u32));
+            root_faults.push(sys.active_faults().to_vec());
             frontier.push(n);
         }
     }
     let mut acts = Vec::new();
+    let mut positions = vec![0.0; model.sensors.len()];
+    let mut scratch = (
+        pre.nodes[0].sys.sample().clone(),
+        crate::controller::Outputs::default(),
+    );
     let mut next_frontier = Vec::new();
     // Arena index of each frontier node.
     let mut frontier_ids: Vec<u32> = (0..frontier.len() as u32).collect();
@@ -390,7 +503,7 @@ pub fn search_fault<'v>(
         for (fi, node) in frontier.iter().enumerate() {
             let my_id = frontier_ids[fi];
             if node.since >= horizon {
-                end_modes[node.sys.mode()] = true;
+                end_modes[node.st.mode()] = true;
                 if !node.detected {
                     res.undetected_branch = true;
                 }
@@ -401,12 +514,25 @@ pub fn search_fault<'v>(
             let twin = &pre.nodes[node.twin as usize];
             let mut any_new = false;
             for (ai, &a) in acts.iter().enumerate() {
-                let mut sys = node.sys.clone();
-                period_step(&mut sys, model, g[usize::from(a)], now);
+                let mut st = node.st.clone();
+                let mut plate = node.plate;
+                if let Some(d) = model.driver {
+                    positions[d] = g[usize::from(a)];
+                }
+                crate::sim::system::period(
+                    vehicle,
+                    &mut st,
+                    &mut plate,
+                    &mut positions,
+                    &root_faults[node.origin as usize],
+                    now,
+                    period,
+                    &mut scratch,
+                );
                 let twin_next = twin.succ.get(ai).copied().unwrap_or(node.twin);
                 let tw = &pre.nodes[twin_next as usize].sys;
                 let driver = g[usize::from(a)];
-                let (open, open_n) = (sys.opening(), tw.opening());
+                let (open, open_n) = (plate.position, tw.opening());
                 let mut timers = node.timers;
                 timers.released = if a == 0 {
                     (timers.released + 1).min(release_cap)
@@ -420,7 +546,7 @@ pub fn search_fault<'v>(
                 // Monitors and detection.
                 let mut detected = node.detected;
                 for (f, seen) in monitor_seen.iter_mut().enumerate() {
-                    if sys.fault_set(f) && !tw.fault_set(f) {
+                    if st.fault_set(f) && !tw.fault_set(f) {
                         *seen = true;
                         if !detected {
                             detected = true;
@@ -429,7 +555,7 @@ pub fn search_fault<'v>(
                         }
                     }
                 }
-                if model.modes[sys.mode()].is_safe() && !model.modes[node.sys.mode()].is_safe() {
+                if model.modes[st.mode()].is_safe() && !model.modes[node.st.mode()].is_safe() {
                     let t = Time(period.0 * u64::from(since));
                     res.to_safe = Some(res.to_safe.map_or(t, |w| w.max(t)));
                 }
@@ -437,7 +563,9 @@ pub fn search_fault<'v>(
                 for (ri, r) in reqs.iter().enumerate() {
                     let violated = match *r {
                         Req::Excess { limit, steps } => {
-                            let ex = open - open_n;
+                            // The springs' default position is the designed limp-home opening:
+                            // resting there is not an excess, whatever the twin does.
+                            let ex = open - open_n.max(model.actuator.default);
                             if ex > res.worst_excess {
                                 res.worst_excess = ex;
                             }
@@ -480,8 +608,8 @@ pub fn search_fault<'v>(
                             }
                         }
                     };
-                    if violated && !found[ri] {
-                        found[ri] = true;
+                    if violated && !found[ri] && tries[ri] < MAX_CONFIRMATIONS {
+                        tries[ri] += 1;
                         // Rebuild the pedal path: pre-fault prefix, then the joint path.
                         let mut tail = vec![driver];
                         let mut id = my_id;
@@ -497,21 +625,16 @@ pub fn search_fault<'v>(
                         }
                         tail.reverse();
                         let mut pedal = pedal_path(pre, origin, &g);
-                        let inject_step = pre.nodes[origin as usize].depth;
+                        let inject_step = pedal.len() as u32;
                         pedal.extend(tail);
-                        let bound = match *r {
-                            Req::Excess { limit, .. } => open_n + limit,
-                            Req::Never { above, .. } => above,
-                            Req::Idle { idle, .. } => idle,
-                        };
-                        res.violations.push(Violation {
-                            requirement: ri,
-                            pedal,
-                            inject_step,
-                            at,
-                            opening: open,
-                            bound,
-                        });
+                        // Merged states stand for their first visitor: replay the path exactly,
+                        // faulty and fault-free, and keep the violation only if it is real.
+                        if let Some(v) = confirm(vehicle, inj, &pedal, inject_step, ri, r) {
+                            found[ri] = true;
+                            res.violations.push(v);
+                        } else {
+                            res.unconfirmed += 1;
+                        }
                     }
                 }
                 timers.excess = if excess_now {
@@ -520,7 +643,8 @@ pub fn search_fault<'v>(
                     0
                 };
                 let child = Node {
-                    sys,
+                    st,
+                    plate,
                     twin: twin_next,
                     pedal: a,
                     timers,
@@ -530,8 +654,12 @@ pub fn search_fault<'v>(
                     detected,
                 };
                 let k = key(&child, &mut buf);
-                if !visited.insert(k) {
-                    continue;
+                match visited.get_mut(&k) {
+                    Some(r) if *r >= child.timers.released => continue,
+                    Some(r) => *r = child.timers.released,
+                    None => {
+                        visited.insert(k, child.timers.released);
+                    }
                 }
                 if arena.len() >= cfg.max_states {
                     res.truncated = true;
@@ -543,7 +671,7 @@ pub fn search_fault<'v>(
                 next_frontier.push(child);
             }
             if !any_new {
-                end_modes[node.sys.mode()] = true;
+                end_modes[node.st.mode()] = true;
             }
         }
         std::mem::swap(&mut frontier, &mut next_frontier);

@@ -44,6 +44,51 @@ pub struct System<'v> {
     condition: ActuatorCondition,
 }
 
+/// What the controller's pins see: each sensor's tracks at its true position (the feedback
+/// sensor at the plate's), as the wiring with its active faults delivers them. The one place
+/// that turns the world into a sample, for the simulator and the prover alike.
+pub fn sample_pins(
+    model: &Model,
+    positions: &[f64],
+    active: &[ActiveFault],
+    now: Time,
+    sample: &mut Sample,
+) {
+    for (s, out) in sample.volts.iter_mut().enumerate() {
+        let pos = positions.get(s).copied().unwrap_or(0.0);
+        faults::sensor_volts(model, s, pos, active, now, out);
+    }
+}
+
+/// One controller period of a powered vehicle: sample, controller step, then the plate over
+/// `dt` with the step's drive. The simulator does the same in two halves, because script
+/// events may fall between steps.
+#[allow(clippy::too_many_arguments)]
+pub fn period(
+    vehicle: &Vehicle,
+    state: &mut State,
+    plate: &mut PlantState,
+    positions: &mut [f64],
+    active: &[ActiveFault],
+    now: Time,
+    dt: Time,
+    scratch: &mut (Sample, Outputs),
+) {
+    let model = vehicle.ctl.model();
+    positions[model.feedback] = plate.position;
+    sample_pins(model, positions, active, now, &mut scratch.0);
+    vehicle.ctl.step_in_place(state, &scratch.0, &mut scratch.1);
+    let condition = faults::actuator_condition(active);
+    *plate = plant::advance(
+        &vehicle.params,
+        *plate,
+        scratch.1.duty,
+        scratch.1.drive_on,
+        &condition,
+        dt,
+    );
+}
+
 impl<'v> System<'v> {
     /// Key on at rest: the plate at its default position, the pedal released, inputs at the
     /// top of their band (the most the other controller may ask for).
@@ -126,6 +171,11 @@ impl<'v> System<'v> {
         mended
     }
 
+    /// The sample buffer, with the inputs and switches as set.
+    pub fn sample(&self) -> &Sample {
+        &self.sample
+    }
+
     pub fn active_faults(&self) -> &[ActiveFault] {
         &self.active
     }
@@ -151,10 +201,7 @@ impl<'v> System<'v> {
     fn sample_pins(&mut self, now: Time) {
         let model = self.ctl.model();
         self.positions[model.feedback] = self.plate.position;
-        for s in 0..model.sensors.len() {
-            let (pos, out) = (self.positions[s], &mut self.sample.volts[s]);
-            faults::sensor_volts(model, s, pos, &self.active, now, out);
-        }
+        sample_pins(model, &self.positions, &self.active, now, &mut self.sample);
     }
 
     /// One controller step at instant `now`; its events are appended to `events`.
