@@ -5,6 +5,7 @@ mod check;
 mod findings;
 mod fmt;
 mod robust;
+mod run;
 
 use std::path::Path;
 
