@@ -542,7 +542,6 @@ pub fn search_fault<'v>(
                 let mut excess_now = false;
                 let since = node.since + 1;
                 let step = node.step + 1;
-                let at = Time(period.0 * u64::from(step));
                 // Monitors and detection.
                 let mut detected = node.detected;
                 for (f, seen) in monitor_seen.iter_mut().enumerate() {

@@ -4,6 +4,7 @@
 mod check;
 mod findings;
 mod fmt;
+mod prove;
 mod robust;
 mod run;
 
