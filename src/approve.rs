@@ -1,6 +1,6 @@
 //! Approved traces: `limpet run --approved DIR` compares each scenario's text trace with the
 //! one stored as `DIR/<scenario>.trace` and shows a unified diff on a difference;
-//! `--approve` stores the new traces instead.
+//! `--approve` stores the new traces instead. A failed expectation fails the run either way.
 
 use crate::app::{Exit, Outcome, RunConfig};
 use std::path::{Path, PathBuf};
@@ -35,6 +35,10 @@ pub fn run_approved(paths: &[String], cfg: &RunConfig, dir: &str, approve: bool)
                 continue;
             }
         };
+        if !r.trace.passed() {
+            stdout.push_str(&format!("{p}: an expectation fails\n"));
+            exit = exit.max(Exit::Finding);
+        }
         let text = r.trace.to_text(false);
         let file = approved_path(dir, p);
         let shown = file.to_string_lossy().replace('\\', "/");

@@ -364,6 +364,8 @@ pub struct MatrixDiff {
     pub coverage: String,
     pub rows: usize,
     pub changed: Vec<RowChange>,
+    /// A search of either revision hit a bound: its `?` cells are not verdicts.
+    pub bound_hit: bool,
 }
 
 fn ms(t: Option<Time>) -> String {
@@ -510,5 +512,6 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
         coverage: crate::prove::report::coverage(names.new, pn),
         rows: old_rows.len().max(new_rows.len()),
         changed,
+        bound_hit: po.inconclusive() || pn.inconclusive(),
     }
 }

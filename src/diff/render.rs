@@ -11,6 +11,8 @@ use std::fmt::Write;
 
 const CAUTION: &str = "limpet is a design aid, not a substitute for a safety case, vehicle testing, or regulations and licensed engineering judgment.";
 
+const BOUND: &str = "a search hit its state bound: cells marked `?` are not verdicts; run `limpet prove` on each revision for a full search";
+
 fn plural(n: usize, one: &str, many: &str) -> String {
     format!("{n} {}", if n == 1 { one } else { many })
 }
@@ -181,6 +183,9 @@ pub fn text(r: &Report) -> String {
             m.changed.len()
         );
         let _ = writeln!(o, "  {}", m.coverage);
+        if m.bound_hit {
+            let _ = writeln!(o, "  {BOUND}");
+        }
         for row in &m.changed {
             match (row.in_old, row.in_new) {
                 (true, false) => {
@@ -223,7 +228,12 @@ pub fn markdown(r: &Report) -> String {
         cell(&r.old),
         cell(&r.new)
     );
-    let _ = writeln!(o, "**{}.**\n", conclusion(r));
+    let c = conclusion(r);
+    let mut chars = c.chars();
+    let c = chars
+        .next()
+        .map_or_else(String::new, |f| f.to_uppercase().chain(chars).collect());
+    let _ = writeln!(o, "**{c}.**\n");
     o.push_str("### Structure and meaning\n\n");
     if r.changes.is_empty() {
         o.push_str("No change: both revisions resolve to the same model.\n");
@@ -331,6 +341,9 @@ pub fn markdown(r: &Report) -> String {
     if let Some(m) = &r.matrix {
         o.push_str("\n### Reaction matrix\n\n");
         let _ = writeln!(o, "_{}_\n", cell(&m.coverage));
+        if m.bound_hit {
+            let _ = writeln!(o, "{BOUND}\n");
+        }
         if m.changed.is_empty() {
             let _ = writeln!(o, "All {} are the same.", plural(m.rows, "row", "rows"));
         } else {
