@@ -515,3 +515,57 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
         bound_hit: po.inconclusive() || pn.inconclusive(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const VAN: &str = include_str!("../../scenarios/van/van_throttle.limp");
+
+    #[test]
+    fn matrix_rows_pair_by_fault_and_report_the_changed_columns() {
+        let (Ok(old), Ok(new)) = (
+            crate::model::lower(VAN),
+            crate::model::lower(&VAN.replace("within 200 ms", "within 100 ms")),
+        ) else {
+            panic!("fixture does not lower");
+        };
+        let cfg = crate::prove::Config {
+            only: Some("pedal.b stuck".into()),
+            max_states: 2_000,
+            jobs: 1,
+            ..crate::diff::review_search()
+        };
+        let quiet = |_: usize, _: usize, _: usize| {};
+        let (Ok(po), Ok(pn)) = (
+            crate::prove::prove(&old, &cfg, &quiet),
+            crate::prove::prove(&new, &cfg, &quiet),
+        ) else {
+            panic!("the van's actuator is usable");
+        };
+        let st = crate::diff::structure::compare(&old, &new);
+        let names = Names {
+            old: &old,
+            new: &new,
+            fault_map: &st.fault_map,
+            mode_map: &st.mode_map,
+        };
+        let same = matrices(&po, &po, &names);
+        assert!(same.changed.is_empty(), "{:?}", same.changed);
+        let d = matrices(&po, &pn, &names);
+        assert_eq!(d.rows, 1);
+        assert_eq!(d.changed.len(), 1, "{:?}", d.changed);
+        let row = &d.changed[0];
+        assert_eq!(row.fault, "pedal.b stuck");
+        let cols: Vec<&str> = row.cells.iter().map(|c| c.column.as_str()).collect();
+        assert_eq!(
+            cols,
+            vec![
+                "excess below 5 % within 200 ms",
+                "excess below 5 % within 100 ms"
+            ]
+        );
+        assert_eq!(row.cells[0].new, "-");
+        assert_eq!(row.cells[1].old, "-");
+    }
+}
