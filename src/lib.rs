@@ -5,8 +5,10 @@
 
 pub mod analysis;
 pub mod app;
+pub mod approve;
 pub mod controller;
 pub mod diag;
+pub mod diff;
 pub mod faults;
 pub mod fmt;
 pub mod lang;

@@ -79,6 +79,12 @@ enum Command {
         /// Print only the verdicts.
         #[arg(long, short)]
         quiet: bool,
+        /// Compare each trace with the approved `<scenario>.trace` in this folder.
+        #[arg(long, value_name = "DIR")]
+        approved: Option<String>,
+        /// With --approved, store the new traces as the approved ones.
+        #[arg(long, requires = "approved")]
+        approve: bool,
     },
     /// Search every catalogued fault exhaustively; print the reaction matrix.
     Prove {
@@ -112,6 +118,25 @@ enum Command {
         #[arg(long)]
         counterexamples: Option<String>,
         /// text, json or markdown.
+        #[arg(long, value_enum, default_value = "text")]
+        format: OutFormat,
+    },
+    /// Compare two policy revisions on the resolved model: structure, guards, behaviour.
+    Diff {
+        /// The old revision: a policy file, or `REV:PATH` read from git.
+        old: String,
+        /// The new revision: a policy file, or `REV:PATH` read from git.
+        new: String,
+        /// Replay every `*.scenario` in this folder against both revisions.
+        #[arg(long, value_name = "DIR")]
+        scenarios: Option<String>,
+        /// Also compare the reaction matrices (a coarse search of both revisions).
+        #[arg(long)]
+        prove: bool,
+        /// With --prove, only fault sets whose description contains this text.
+        #[arg(long, requires = "prove")]
+        only: Option<String>,
+        /// text, markdown or json.
         #[arg(long, value_enum, default_value = "text")]
         format: OutFormat,
     },
@@ -174,6 +199,8 @@ fn main() -> ExitCode {
             sample,
             format,
             quiet,
+            approved,
+            approve,
         } => {
             let cfg = app::RunConfig {
                 policy,
@@ -181,7 +208,10 @@ fn main() -> ExitCode {
                 format: format.into(),
                 quiet,
             };
-            app::run(&scenarios, &cfg)
+            match approved {
+                Some(dir) => limpet::approve::run_approved(&scenarios, &cfg, &dir, approve),
+                None => app::run(&scenarios, &cfg),
+            }
         }
         Command::Prove {
             policy,
@@ -221,6 +251,25 @@ fn main() -> ExitCode {
                 };
                 app::prove(&policy, &cfg)
             }
+        }
+        Command::Diff {
+            old,
+            new,
+            scenarios,
+            prove,
+            only,
+            format,
+        } => {
+            let search = prove.then(|| limpet::prove::Config {
+                only,
+                ..limpet::diff::review_search()
+            });
+            let cfg = limpet::diff::DiffConfig {
+                format: format.into(),
+                scenarios,
+                prove: search,
+            };
+            limpet::diff::run(&old, &new, &cfg)
         }
         Command::Fmt { files, check, diff } => limpet::fmt::run(&files, check, diff),
     };

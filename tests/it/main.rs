@@ -1,7 +1,9 @@
 //! End-to-end tests over files in scenarios/ and tests/fixtures/: one test binary, a module per
 //! command.
 
+mod approve;
 mod check;
+mod diff;
 mod findings;
 mod fmt;
 mod prove;
