@@ -96,7 +96,10 @@ enum Command {
         /// Quantisation of continuous states in percent.
         #[arg(long, default_value_t = 10.0)]
         resolution: f64,
-        /// Time followed after each injection, e.g. `1.5s`.
+        /// Fault-free states that agree at this resolution (percent) share an injection instant.
+        #[arg(long, default_value_t = 20.0)]
+        injection_resolution: f64,
+        /// Time followed after each injection, e.g. `1.2s`.
         #[arg(long, value_parser = parse_time, default_value = "1.2s")]
         horizon: limpet::time::Time,
         /// Bound on stored states per search; hitting it makes the verdict inconclusive.
@@ -217,6 +220,7 @@ fn main() -> ExitCode {
             policy,
             grid,
             resolution,
+            injection_resolution,
             horizon,
             max_states,
             jobs,
@@ -235,6 +239,7 @@ fn main() -> ExitCode {
                 let search = limpet::prove::Config {
                     grid,
                     resolution,
+                    injection_resolution,
                     horizon,
                     max_states,
                     free_pedal,

@@ -19,6 +19,8 @@ pub struct Config {
     pub grid: f64,
     /// Quantisation of continuous states in the visited set, percent (volts proportionally).
     pub resolution: f64,
+    /// Fault-free states that agree at this resolution (percent) share one injection instant.
+    pub injection_resolution: f64,
     /// How long after each injection every branch is followed.
     pub horizon: Time,
     /// Bound on stored states per search.
@@ -37,6 +39,7 @@ impl Default for Config {
         Config {
             grid: 10.0,
             resolution: 10.0,
+            injection_resolution: 20.0,
             horizon: Time::from_ms(1200),
             max_states: 400_000,
             free_pedal: false,

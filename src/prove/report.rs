@@ -110,7 +110,7 @@ fn headers(p: &Proof) -> Vec<String> {
 pub fn coverage(m: &Model, p: &Proof) -> String {
     let c = &p.config;
     format!(
-        "policy {}: {} fault set{} ({}), {} states ({} fault-free), pedal grid {} %{}, resolution {} %, horizon {} after each injection, every injection instant of the fault-free set",
+        "policy {}: {} fault set{} ({}), {} states ({} fault-free), pedal grid {} %{}, resolution {} %, horizon {} after each injection, injection at every fault-free state, merged at {} % ({} injection instants per fault on average)",
         m.name,
         p.rows.len(),
         if p.rows.len() == 1 { "" } else { "s" },
@@ -127,7 +127,9 @@ pub fn coverage(m: &Model, p: &Proof) -> String {
             ", pedal at most one grid step per period"
         },
         trim(c.resolution),
-        c.horizon
+        c.horizon,
+        trim(c.injection_resolution.max(c.resolution)),
+        p.rows.iter().map(|r| r.result.roots).sum::<usize>() / p.rows.len().max(1)
     )
 }
 

@@ -34,9 +34,18 @@ fn temp_dir(name: &str) -> std::path::PathBuf {
 
 /// Each flawed demo, with the fault family that exposes its flaw.
 const FLAWED: [(&str, &str); 3] = [
-    ("scenarios/van-flawed/pedal_max.limp", "pedal.a short supply"),
-    ("scenarios/van-flawed/feedback_min_slow.limp", "throttle.a short ground"),
-    ("scenarios/van-flawed/no_plausibility.limp", "pedal ground offset +0.5 V"),
+    (
+        "scenarios/van-flawed/pedal_max.limp",
+        "pedal.a short supply",
+    ),
+    (
+        "scenarios/van-flawed/feedback_min_slow.limp",
+        "throttle.a short ground",
+    ),
+    (
+        "scenarios/van-flawed/no_plausibility.limp",
+        "pedal ground offset +0.5 V",
+    ),
 ];
 
 #[test]
@@ -45,7 +54,11 @@ fn flawed_demos_fail_with_counterexamples_that_replay() {
         let m = load(policy);
         let cfg = focused(only);
         let proof = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
-        assert!(proof.violated(), "{policy}: prove must catch the flaw\n{}", prove::report::text(&m, &proof));
+        assert!(
+            proof.violated(),
+            "{policy}: prove must catch the flaw\n{}",
+            prove::report::text(&m, &proof)
+        );
         let dir = temp_dir(&m.name);
         for (ri, row) in proof.rows.iter().enumerate() {
             for v in &row.result.violations {
@@ -59,7 +72,12 @@ fn flawed_demos_fail_with_counterexamples_that_replay() {
                     ..RunConfig::default()
                 };
                 let out = app::run(&[file.to_string_lossy().into_owned()], &cfg);
-                assert_eq!(out.exit, Exit::Finding, "{policy}: the counterexample must fail on replay\n{text}\n{}", out.stderr);
+                assert_eq!(
+                    out.exit,
+                    Exit::Finding,
+                    "{policy}: the counterexample must fail on replay\n{text}\n{}",
+                    out.stderr
+                );
                 let json: serde_json::Value = serde_json::from_str(&out.stdout).expect("json");
                 let e = &json["expectations"][0];
                 assert_eq!(e["passed"], false);
@@ -124,7 +142,12 @@ fn random_campaign_finds_nothing_the_prover_missed() {
                 let mut pedal = Vec::new();
                 // Start from rest: climb to the chosen pedal one step at a time, then wander.
                 for k in 0..inject + horizon {
-                    let target = if k < inject { p } else { (p as i64 + rng.below(3) as i64 - 1).clamp(0, grid.len() as i64 - 1) as usize };
+                    let target = if k < inject {
+                        p
+                    } else {
+                        (p as i64 + rng.below(3) as i64 - 1).clamp(0, grid.len() as i64 - 1)
+                            as usize
+                    };
                     let last = pedal.last().map_or(0usize, |&x: &usize| x);
                     let step = (target as i64 - last as i64).clamp(-1, 1);
                     p = target;
@@ -132,7 +155,8 @@ fn random_campaign_finds_nothing_the_prover_missed() {
                 }
                 let values: Vec<f64> = pedal.iter().map(|&i| grid[i]).collect();
                 for (ri, r) in proof.requirements.iter().enumerate() {
-                    let sampled = search::confirm(&vehicle, &row.faults, &values, inject as u32, ri, r);
+                    let sampled =
+                        search::confirm(&vehicle, &row.faults, &values, inject as u32, ri, r);
                     if sampled.is_some() {
                         let proved = row.result.violations.iter().any(|v| v.requirement == ri);
                         let bound_hit = row.result.truncated;
