@@ -5,6 +5,7 @@ mod check;
 mod findings;
 mod fmt;
 mod robust;
+mod views;
 
 use std::path::Path;
 
