@@ -360,6 +360,22 @@ fn replay_text(m: &Model, text: &str) -> Result<String, String> {
     Ok(crate::report::plot::svg(&trace, &script.expectations))
 }
 
+/// `limpet review` from the command line's values: checks the search flags, then reviews.
+pub fn command(dir: String, output: Option<String>, search: crate::prove::Config) -> Outcome {
+    let (g, r) = (search.grid, search.resolution);
+    if !(g > 0.0 && g <= 100.0 && r > 0.0 && r <= 50.0) {
+        return Outcome::bad_input(
+            "error: --grid must be in (0, 100] and --resolution in (0, 50] percent\n".into(),
+        );
+    }
+    review(&ReviewConfig {
+        dir,
+        output,
+        search,
+        progress: std::io::IsTerminal::is_terminal(&std::io::stderr()),
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -411,20 +427,4 @@ mod tests {
         }
         let _ = std::fs::remove_dir_all(&d);
     }
-}
-
-/// `limpet review` from the command line's values: checks the search flags, then reviews.
-pub fn command(dir: String, output: Option<String>, search: crate::prove::Config) -> Outcome {
-    let (g, r) = (search.grid, search.resolution);
-    if !(g > 0.0 && g <= 100.0 && r > 0.0 && r <= 50.0) {
-        return Outcome::bad_input(
-            "error: --grid must be in (0, 100] and --resolution in (0, 50] percent\n".into(),
-        );
-    }
-    review(&ReviewConfig {
-        dir,
-        output,
-        search,
-        progress: std::io::IsTerminal::is_terminal(&std::io::stderr()),
-    })
 }

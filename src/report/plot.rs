@@ -76,6 +76,14 @@ pub fn bands(trace: &Trace) -> Vec<Band> {
     out
 }
 
+/// A curve: legend name, colour, stroke width, and the sample field it draws.
+type Series = (
+    &'static str,
+    RGBColor,
+    u32,
+    fn(&crate::sim::trace::TraceSample) -> f64,
+);
+
 /// A vertical marker: instant, label, colour.
 struct Marker {
     at: f64,
@@ -257,12 +265,7 @@ fn draw(trace: &Trace, expectations: &[Expectation], buf: &mut String) -> Result
             .map_err(|e| err(&e))?;
     }
 
-    let series: [(
-        &str,
-        RGBColor,
-        u32,
-        fn(&crate::sim::trace::TraceSample) -> f64,
-    ); 4] = [
+    let series: [Series; 4] = [
         ("driver pedal", DRIVER, 1, |s| s.driver),
         ("merged pedal", PEDAL, 2, |s| s.pedal),
         ("target", TARGET, 2, |s| s.target),
