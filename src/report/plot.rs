@@ -257,11 +257,17 @@ fn draw(trace: &Trace, expectations: &[Expectation], buf: &mut String) -> Result
         // Inside the shaded side, so the label never sits on the curve it limits.
         let v = if w.at_most { VPos::Bottom } else { VPos::Top };
         let ly = w.limit;
+        // Near the right end the label runs leftwards from the window's end, to stay inside.
+        let (h, lx) = if x0 > end * 0.75 {
+            (HPos::Right, x1)
+        } else {
+            (HPos::Left, x0)
+        };
         let style = TextStyle::from((FONT, 15).into_font())
             .color(&colour)
-            .pos(Pos::new(HPos::Left, v));
+            .pos(Pos::new(h, v));
         chart
-            .draw_series(std::iter::once(Text::new(label, (x0, ly), style)))
+            .draw_series(std::iter::once(Text::new(label, (lx, ly), style)))
             .map_err(|e| err(&e))?;
     }
 
