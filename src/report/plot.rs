@@ -480,22 +480,24 @@ mod tests {
     #[test]
     fn bands_merge_runs_and_mark_key_off() {
         let b = bands(&trace());
+        // Instants as the trace converts them (0.3 s is not exact in binary).
+        let s = |ms| Time::from_ms(ms).as_secs_f64();
         assert_eq!(
             b,
             vec![
                 Band {
-                    from: 0.0,
-                    to: 0.2,
+                    from: s(0),
+                    to: s(200),
                     mode: Some(0)
                 },
                 Band {
-                    from: 0.2,
-                    to: 0.3,
+                    from: s(200),
+                    to: s(300),
                     mode: Some(1)
                 },
                 Band {
-                    from: 0.3,
-                    to: 0.4,
+                    from: s(300),
+                    to: s(400),
                     mode: None
                 },
             ]
