@@ -224,6 +224,8 @@ pub struct RunConfig {
 pub struct Replay {
     pub scenario: Source,
     pub model: Model,
+    /// The script as resolved, for views that need its expectations.
+    pub script: crate::sim::script::Script,
     pub trace: crate::sim::trace::Trace,
 }
 
@@ -272,6 +274,7 @@ pub fn replay(
     Ok(Replay {
         scenario: src,
         model,
+        script,
         trace,
     })
 }
@@ -301,7 +304,9 @@ pub fn run(paths: &[String], cfg: &RunConfig) -> Outcome {
             Format::Json => stdout.push_str(&r.trace.to_json()),
             Format::Csv => stdout.push_str(&r.trace.to_csv()),
             Format::Vcd => stdout.push_str(&crate::report::vcd::write(&r.trace)),
-            Format::Svg => stdout.push_str(&crate::report::plot::svg(&r.trace)),
+            Format::Svg => {
+                stdout.push_str(&crate::report::plot::svg(&r.trace, &r.script.expectations))
+            }
             _ => {
                 stdout.push_str(&r.trace.to_text(cfg.quiet));
                 if paths.len() > 1 {

@@ -16,5 +16,6 @@ pub mod model;
 pub mod plant;
 pub mod prove;
 pub mod report;
+pub mod review;
 pub mod sim;
 pub mod time;

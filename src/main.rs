@@ -58,7 +58,7 @@ enum Command {
     Graph {
         /// The policy file (.limp).
         policy: String,
-        /// dot or json.
+        /// dot, json or svg.
         #[arg(long, value_enum, default_value = "dot")]
         format: OutFormat,
     },
@@ -143,6 +143,29 @@ enum Command {
         #[arg(long, value_enum, default_value = "text")]
         format: OutFormat,
     },
+    /// Check, run every scenario and prove one policy folder; write an HTML review page.
+    Review {
+        /// The folder: one .limp policy and its .scenario files.
+        dir: String,
+        /// The HTML file (default DIR/review.html); never a .limp or .scenario file.
+        #[arg(long, short)]
+        output: Option<String>,
+        /// Pedal grid step in percent for the proof.
+        #[arg(long, default_value_t = limpet::prove::Config::default().grid)]
+        grid: f64,
+        /// Quantisation of continuous states in percent.
+        #[arg(long, default_value_t = limpet::prove::Config::default().resolution)]
+        resolution: f64,
+        /// Time followed after each injection, e.g. `1.2s`.
+        #[arg(long, value_parser = parse_time, default_value = "1.2s")]
+        horizon: limpet::time::Time,
+        /// Bound on stored states per search; hitting it makes the verdict inconclusive.
+        #[arg(long, default_value_t = limpet::prove::Config::default().max_states)]
+        max_states: usize,
+        /// Only fault sets whose description contains this text.
+        #[arg(long)]
+        only: Option<String>,
+    },
     /// Rewrite policies and scenarios in the canonical layout.
     Fmt {
         /// Files to format; `-` reads standard input (a policy) and writes standard output.
@@ -195,6 +218,10 @@ fn main() -> ExitCode {
             format,
             deny,
         } => app::check(&policy, format.into(), deny.is_some()),
+        Command::Graph {
+            policy,
+            format: OutFormat::Svg,
+        } => limpet::report::graph_svg::command(&policy),
         Command::Graph { policy, format } => app::graph(&policy, format.into()),
         Command::Run {
             scenarios,
@@ -275,6 +302,25 @@ fn main() -> ExitCode {
                 prove: search,
             };
             limpet::diff::run(&old, &new, &cfg)
+        }
+        Command::Review {
+            dir,
+            output,
+            grid,
+            resolution,
+            horizon,
+            max_states,
+            only,
+        } => {
+            let search = limpet::prove::Config {
+                grid,
+                resolution,
+                horizon,
+                max_states,
+                only,
+                ..limpet::prove::Config::default()
+            };
+            limpet::review::command(dir, output, search)
         }
         Command::Fmt { files, check, diff } => limpet::fmt::run(&files, check, diff),
     };

@@ -2,6 +2,8 @@
 //! markdown and HTML reports.
 
 pub mod graph;
+pub mod graph_svg;
+pub mod html;
 pub mod plot;
 pub mod text;
 pub mod vcd;

@@ -9,6 +9,7 @@ mod fmt;
 mod prove;
 mod robust;
 mod run;
+mod views;
 
 use std::path::Path;
 
