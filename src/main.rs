@@ -103,7 +103,7 @@ enum Command {
         #[arg(long, value_parser = parse_time, default_value = "1.2s")]
         horizon: limpet::time::Time,
         /// Bound on stored states per search; hitting it makes the verdict inconclusive.
-        #[arg(long, default_value_t = 400_000)]
+        #[arg(long, default_value_t = limpet::prove::Config::default().max_states)]
         max_states: usize,
         /// Threads (0: one per core). Output does not depend on it.
         #[arg(long, default_value_t = 0)]

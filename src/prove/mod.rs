@@ -41,7 +41,7 @@ impl Default for Config {
             resolution: 10.0,
             injection_resolution: 20.0,
             horizon: Time::from_ms(1200),
-            max_states: 400_000,
+            max_states: 100_000,
             free_pedal: false,
             jobs: 0,
             scope: None,

@@ -400,6 +400,7 @@ pub fn replay_check(
 /// Directed probes beside the breadth-first search: from every injection instant, the driver
 /// holds the pedal, or releases it at once, for the whole horizon. Deep, cheap, and exactly
 /// the drives a reviewer asks about first; every violation found is exact by construction.
+#[allow(clippy::too_many_arguments)]
 fn probe(
     vehicle: &Vehicle,
     pre: &PreSet<'_>,
