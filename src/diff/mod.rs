@@ -29,7 +29,7 @@ pub fn review_search() -> crate::prove::Config {
     crate::prove::Config {
         grid: 25.0,
         resolution: 10.0,
-        horizon: crate::time::Time::from_ms(300),
+        horizon: crate::time::Time::from_ms(1200),
         max_states: 20_000,
         ..crate::prove::Config::default()
     }
