@@ -690,7 +690,7 @@ impl Valuation<'_> {
             entries.push(Entry::Value {
                 term: term_name(m, &l.term),
                 value,
-                unit: term_unit(&l.term),
+                unit: crate::report::text::term_unit(&l.term),
             });
         }
         Assignment { entries }
@@ -727,26 +727,6 @@ pub fn term_name(m: &Model, t: &Term) -> String {
         Term::Signal { signal } => signal_name(m, signal),
         Term::Diff { a, b } => format!("{} - {}", signal_name(m, a), signal_name(m, b)),
         Term::AbsDiff { a, b } => format!("|{} - {}|", signal_name(m, a), signal_name(m, b)),
-    }
-}
-
-fn term_unit(t: &Term) -> &'static str {
-    let volts = |s: Signal| matches!(s, Signal::TrackVolts { .. });
-    match *t {
-        Term::Signal { signal } => {
-            if volts(signal) {
-                "V"
-            } else {
-                "%"
-            }
-        }
-        Term::Diff { a, .. } | Term::AbsDiff { a, .. } => {
-            if volts(a) {
-                "V"
-            } else {
-                "%"
-            }
-        }
     }
 }
 

@@ -87,21 +87,21 @@ fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
     c
 }
 
+/// The reaction matrix's columns before the one-per-requirement verdicts.
+pub const COLUMNS: [&str; 9] = [
+    "fault",
+    "seen by (static)",
+    "detected by",
+    "worst detection",
+    "ends in",
+    "to safe",
+    "worst excess / for",
+    "worst opening, driver below",
+    "release to idle",
+];
+
 fn headers(p: &Proof) -> Vec<String> {
-    let mut h: Vec<String> = [
-        "fault",
-        "seen by (static)",
-        "detected by",
-        "worst detection",
-        "ends in",
-        "to safe",
-        "worst excess / for",
-        "worst opening, driver below",
-        "release to idle",
-    ]
-    .iter()
-    .map(|s| s.to_string())
-    .collect();
+    let mut h: Vec<String> = COLUMNS.iter().map(|s| s.to_string()).collect();
     h.extend(p.requirements.iter().map(|r| r.short().to_string()));
     h
 }

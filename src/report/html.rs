@@ -182,20 +182,10 @@ impl Page<'_> {
         let m = self.model;
         let _ = writeln!(o, "<p>{}</p>", esc(&crate::prove::report::coverage(m, p)));
         o.push_str("<div class=\"matrix-wrap\"><table class=\"matrix\">\n<tr>");
-        let mut heads = vec![
-            "fault",
-            "seen by (static)",
-            "detected by",
-            "worst detection",
-            "ends in",
-            "to safe",
-            "worst excess / for",
-            "worst opening, driver below",
-            "release to idle",
-        ]
-        .into_iter()
-        .map(String::from)
-        .collect::<Vec<_>>();
+        let mut heads = crate::prove::report::COLUMNS
+            .into_iter()
+            .map(String::from)
+            .collect::<Vec<_>>();
         heads.extend(p.requirements.iter().map(|r| r.text(m)));
         for h in &heads {
             let _ = write!(o, "<th>{}</th>", esc(h));

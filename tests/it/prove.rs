@@ -173,5 +173,8 @@ fn random_campaign_finds_nothing_the_prover_missed() {
         }
     }
     // The campaign is not vacuous: it does find violations, and each is one the prover found.
-    assert!(sampled_hits > 0, "the random campaign found no violation on the flawed demos");
+    assert!(
+        sampled_hits > 0,
+        "the random campaign found no violation on the flawed demos"
+    );
 }
