@@ -257,11 +257,8 @@ fn main() -> ExitCode {
             counterexamples,
             format,
         } => {
-            if !(grid > 0.0 && grid <= 100.0 && resolution > 0.0 && resolution <= 50.0) {
-                Outcome::bad_input(
-                    "error: --grid must be in (0, 100] and --resolution in (0, 50] percent\n"
-                        .into(),
-                )
+            if let Err(e) = limpet::prove::Config::check_flags(grid, resolution) {
+                Outcome::bad_input(e)
             } else {
                 let search = limpet::prove::Config {
                     grid,

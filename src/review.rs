@@ -362,11 +362,8 @@ fn replay_text(m: &Model, text: &str) -> Result<String, String> {
 
 /// `limpet review` from the command line's values: checks the search flags, then reviews.
 pub fn command(dir: String, output: Option<String>, search: crate::prove::Config) -> Outcome {
-    let (g, r) = (search.grid, search.resolution);
-    if !(g > 0.0 && g <= 100.0 && r > 0.0 && r <= 50.0) {
-        return Outcome::bad_input(
-            "error: --grid must be in (0, 100] and --resolution in (0, 50] percent\n".into(),
-        );
+    if let Err(e) = crate::prove::Config::check_flags(search.grid, search.resolution) {
+        return Outcome::bad_input(e);
     }
     review(&ReviewConfig {
         dir,

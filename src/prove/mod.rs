@@ -50,6 +50,20 @@ impl Default for Config {
     }
 }
 
+impl Config {
+    /// Validates the grid and resolution flags: the grid must fit a pedal index in a byte.
+    pub fn check_flags(grid: f64, resolution: f64) -> Result<(), String> {
+        if (search::MIN_GRID..=100.0).contains(&grid) && resolution > 0.0 && resolution <= 50.0 {
+            Ok(())
+        } else {
+            Err(format!(
+                "error: --grid must be in {} .. 100 and --resolution in (0, 50] percent\n  = hint: e.g. --grid 5 --resolution 5\n",
+                search::MIN_GRID
+            ))
+        }
+    }
+}
+
 /// A requirement in steps, ready for the search.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Requirement {

@@ -78,8 +78,16 @@ pub struct PreSet<'v> {
 }
 
 /// The pedal grid: `0, g, 2g, ..., 100` percent.
+/// The finest grid the state encoding holds: pedal indices are bytes.
+pub const MIN_GRID: f64 = 0.5;
+
 pub fn grid(cfg: &Config) -> Vec<f64> {
-    let n = (100.0 / cfg.grid).round().max(1.0) as usize;
+    let step = if cfg.grid.is_finite() {
+        cfg.grid.clamp(MIN_GRID, 100.0)
+    } else {
+        10.0
+    };
+    let n = (100.0 / step).round().max(1.0) as usize;
     (0..=n)
         .map(|i| (i as f64 * 100.0 / n as f64).min(100.0))
         .collect()
