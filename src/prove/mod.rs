@@ -206,9 +206,8 @@ pub fn prove(
     }
     let mut sets: Vec<Vec<Injection>> = space.iter().map(|i| vec![*i]).collect();
     if scope == FaultScope::Double {
-        // Unordered pairs, both injected at the same instant of every fault-free state (the
-        // search then covers the second arriving any time up to one period after the first
-        // only through that instant; independent instants are a FIXME).
+        // Unordered pairs: the first injected at every fault-free instant, the second at any
+        // later step the search chooses (an action beside the pedal moves).
         for i in 0..space.len() {
             for j in i + 1..space.len() {
                 sets.push(vec![space[i], space[j]]);

@@ -191,12 +191,27 @@ pub fn stories(m: &Model, p: &Proof) -> String {
                 ""
             };
             let _ = writeln!(o, "violated: {req}{class}");
-            let _ = writeln!(
-                o,
-                "  fault {} injected at {}",
-                fault_text(m, row),
-                secs(inject)
-            );
+            match (v.second_step, row.faults.as_slice()) {
+                (Some(second), [a, b]) => {
+                    let at2 = Time(m.period.0 * u64::from(second));
+                    let _ = writeln!(
+                        o,
+                        "  fault {} injected at {}, then {} at {}",
+                        describe(m, a),
+                        secs(inject),
+                        describe(m, b),
+                        secs(at2)
+                    );
+                }
+                _ => {
+                    let _ = writeln!(
+                        o,
+                        "  fault {} injected at {}",
+                        fault_text(m, row),
+                        secs(inject)
+                    );
+                }
+            }
             let start = v.pedal.get(v.inject_step as usize).copied().unwrap_or(0.0);
             let last = v.pedal.last().copied().unwrap_or(0.0);
             let _ = writeln!(
@@ -377,8 +392,12 @@ pub fn script(
     let mut last: Option<f64> = None;
     for (k, &pedal) in v.pedal.iter().enumerate() {
         let at = Time(m.period.0 * k as u64);
-        if k == v.inject_step as usize {
-            for inj in &row.faults {
+        for (n, inj) in row.faults.iter().enumerate() {
+            let step = match (n, v.second_step) {
+                (0, _) | (_, None) => v.inject_step,
+                (_, Some(s)) => s,
+            };
+            if k == step as usize {
                 let _ = writeln!(o, "  at {:<9} break {}", at.to_string(), describe(m, inj));
             }
         }

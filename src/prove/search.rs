@@ -78,8 +78,9 @@ pub struct PreSet<'v> {
 }
 
 /// The pedal grid: `0, g, 2g, ..., 100` percent.
-/// The finest grid the state encoding holds: pedal indices are bytes.
-pub const MIN_GRID: f64 = 0.5;
+/// The finest grid the state encoding holds: pedal indices are 7 bits (the eighth marks the
+/// second fault of a pair arriving).
+pub const MIN_GRID: f64 = 1.0;
 
 pub fn grid(cfg: &Config) -> Vec<f64> {
     let step = if cfg.grid.is_finite() {
@@ -267,12 +268,19 @@ struct Node {
     origin: u32,
     /// Whether any monitor has set since injection.
     detected: bool,
+    /// Index of this node's active faults in the search's fault lists.
+    faults: u32,
+    /// For a pair: whether the second fault is in yet (it arrives at a step of its own).
+    second_in: bool,
 }
 
 /// A violated requirement with the shortest path that shows it.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Violation {
     pub requirement: usize,
+    /// For a pair injected at independent instants: the step at whose start the second fault
+    /// arrives (`None`: with the first).
+    pub second_step: Option<u32>,
     /// Pedal grid values, one per controller period from key on, up to the violating state.
     pub pedal: Vec<f64>,
     /// The step at whose start the fault is injected.
@@ -325,10 +333,19 @@ pub fn confirm(
     inj: &[Injection],
     pedal: &[f64],
     inject_step: u32,
+    second_step: Option<u32>,
     ri: usize,
     r: &Req,
 ) -> Option<Violation> {
-    let mut v = replay_check(vehicle, inj, pedal, inject_step, std::slice::from_ref(r)).pop()??;
+    let mut v = replay_check(
+        vehicle,
+        inj,
+        pedal,
+        inject_step,
+        second_step,
+        std::slice::from_ref(r),
+    )
+    .pop()??;
     v.requirement = ri;
     Some(v)
 }
@@ -340,6 +357,7 @@ pub fn replay_check(
     inj: &[Injection],
     pedal: &[f64],
     inject_step: u32,
+    second_step: Option<u32>,
     reqs: &[Req],
 ) -> Vec<Option<Violation>> {
     let model = vehicle.ctl.model();
@@ -351,8 +369,12 @@ pub fn replay_check(
     let mut out: Vec<Option<Violation>> = vec![None; reqs.len()];
     for (k, &p) in pedal.iter().enumerate() {
         let now = Time(period.0 * k as u64);
-        if k == inject_step as usize {
-            for i in inj {
+        for (n, i) in inj.iter().enumerate() {
+            let at = match (n, second_step) {
+                (0, _) | (_, None) => inject_step,
+                (_, Some(s)) => s,
+            };
+            if k == at as usize {
                 faulty.inject(*i, now);
             }
         }
@@ -390,6 +412,7 @@ pub fn replay_check(
             if let Some(bound) = hit {
                 out[ri] = Some(Violation {
                     requirement: ri,
+                    second_step,
                     pedal: pedal[..=k].to_vec(),
                     inject_step,
                     at,
@@ -439,7 +462,7 @@ fn probe(
                 path.push(p);
             }
             let inject_step = prefix.len() as u32;
-            for (ri, v) in replay_check(vehicle, inj, &path, inject_step, reqs)
+            for (ri, v) in replay_check(vehicle, inj, &path, inject_step, None, reqs)
                 .into_iter()
                 .enumerate()
             {
@@ -536,7 +559,7 @@ pub fn search_fault<'v>(
         buf.extend_from_slice(&quantise(twin.velocity, cfg.resolution * 40.0).to_le_bytes());
         buf.push(n.pedal);
         buf.extend_from_slice(&n.timers.excess.to_le_bytes());
-        buf.push(u8::from(n.detected));
+        buf.push(u8::from(n.detected) | (u8::from(n.second_in) << 1));
         buf.extend_from_slice(&((n.since) % cycle).to_le_bytes());
         digest(buf)
     };
@@ -563,7 +586,8 @@ pub fn search_fault<'v>(
         }
         let mut sys = o.sys.clone();
         let now = Time(period.0 * u64::from(o.depth));
-        for i in inj {
+        // A pair's second fault arrives later, at a step the search chooses.
+        for i in &inj[..inj.len().min(1)] {
             sys.inject(*i, now);
         }
         let Some(st) = sys.controller_state().cloned() else {
@@ -584,6 +608,8 @@ pub fn search_fault<'v>(
             step: o.depth,
             origin: root_faults.len() as u32,
             detected: false,
+            faults: root_faults.len() as u32,
+            second_in: inj.len() < 2,
         };
         let k = key(&n, &mut buf);
         if visited.insert(k, n.timers.released).is_none() {
@@ -597,6 +623,7 @@ pub fn search_fault<'v>(
         vehicle, pre, &root_ids, inj, cfg, reqs, &mut found, &mut res,
     );
     let mut acts = Vec::new();
+    let mut choices: Vec<(usize, u8, bool)> = Vec::new();
     let mut positions = vec![0.0; model.sensors.len()];
     let mut scratch = (
         pre.nodes[0].sys.sample().clone(),
@@ -622,9 +649,37 @@ pub fn search_fault<'v>(
             actions(cfg, node.pedal, g.len(), &mut acts);
             let twin = &pre.nodes[node.twin as usize];
             let mut any_new = false;
+            choices.clear();
             for (ai, &a) in acts.iter().enumerate() {
+                choices.push((ai, a, false));
+                if !node.second_in {
+                    choices.push((ai, a, true));
+                }
+            }
+            for &(ai, a, inject_b) in &choices {
                 let mut st = node.st.clone();
                 let mut plate = node.plate;
+                let mut faults_now = node.faults;
+                if inject_b {
+                    // The second fault arrives at this step's start, before the pedal moves,
+                    // as a script's `break` line before its `pedal` line does.
+                    if let Some(d) = model.driver {
+                        positions[d] = g[usize::from(node.pedal)];
+                    }
+                    positions[model.feedback] = plate.position;
+                    let mut list = root_faults[node.faults as usize].clone();
+                    let b = crate::faults::ActiveFault::capture(
+                        model,
+                        inj[1],
+                        now,
+                        &positions,
+                        plate.position,
+                        &list,
+                    );
+                    list.push(b);
+                    faults_now = root_faults.len() as u32;
+                    root_faults.push(list);
+                }
                 if let Some(d) = model.driver {
                     positions[d] = g[usize::from(a)];
                 }
@@ -633,7 +688,7 @@ pub fn search_fault<'v>(
                     &mut st,
                     &mut plate,
                     &mut positions,
-                    &root_faults[node.origin as usize],
+                    &root_faults[faults_now as usize],
                     now,
                     period,
                     &mut scratch,
@@ -719,7 +774,7 @@ pub fn search_fault<'v>(
                     if violated && !found[ri] && tries[ri] < MAX_CONFIRMATIONS {
                         tries[ri] += 1;
                         // Rebuild the pedal path: pre-fault prefix, then the joint path.
-                        let mut tail = vec![driver];
+                        let mut tail = vec![(driver, inject_b)];
                         let mut id = my_id;
                         let mut origin = node.origin;
                         while id != u32::MAX {
@@ -728,16 +783,22 @@ pub fn search_fault<'v>(
                                 origin = o;
                                 break;
                             }
-                            tail.push(g[usize::from(pedal)]);
+                            tail.push((g[usize::from(pedal & 0x7f)], pedal & 0x80 != 0));
                             id = parent;
                         }
                         tail.reverse();
                         let mut pedal = pedal_path(pre, origin, &g);
                         let inject_step = pedal.len() as u32;
-                        pedal.extend(tail);
+                        let second_step = tail
+                            .iter()
+                            .position(|&(_, b)| b)
+                            .map(|i| inject_step + i as u32);
+                        pedal.extend(tail.iter().map(|&(p, _)| p));
                         // Merged states stand for their first visitor: replay the path exactly,
                         // faulty and fault-free, and keep the violation only if it is real.
-                        if let Some(v) = confirm(vehicle, inj, &pedal, inject_step, ri, r) {
+                        if let Some(v) =
+                            confirm(vehicle, inj, &pedal, inject_step, second_step, ri, r)
+                        {
                             found[ri] = true;
                             res.violations.push(v);
                         } else {
@@ -760,6 +821,8 @@ pub fn search_fault<'v>(
                     step,
                     origin: node.origin,
                     detected,
+                    faults: faults_now,
+                    second_in: node.second_in || inject_b,
                 };
                 let k = key(&child, &mut buf);
                 match visited.get_mut(&k) {
@@ -774,7 +837,7 @@ pub fn search_fault<'v>(
                     continue;
                 }
                 any_new = true;
-                arena.push((my_id, a, node.origin));
+                arena.push((my_id, a | if inject_b { 0x80 } else { 0 }, node.origin));
                 next_ids.push((arena.len() - 1) as u32);
                 next_frontier.push(child);
             }

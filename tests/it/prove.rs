@@ -157,7 +157,7 @@ fn random_campaign_finds_nothing_the_prover_missed() {
                 let values: Vec<f64> = pedal.iter().map(|&i| grid[i]).collect();
                 for (ri, r) in proof.requirements.iter().enumerate() {
                     let sampled =
-                        search::confirm(&vehicle, &row.faults, &values, inject as u32, ri, r);
+                        search::confirm(&vehicle, &row.faults, &values, inject as u32, None, ri, r);
                     if sampled.is_some() {
                         let proved = row.result.violations.iter().any(|v| v.requirement == ri);
                         sampled_hits += 1;
@@ -177,4 +177,64 @@ fn random_campaign_finds_nothing_the_prover_missed() {
         sampled_hits > 0,
         "the random campaign found no violation on the flawed demos"
     );
+}
+
+/// A pair at independent instants, as the double-fault search reports it: the closing spring
+/// breaks, a feedback wire fails later, the drive goes off and nothing returns the plate. The
+/// exact replay finds the idle requirement broken, and the written script, with its two `break`
+/// lines at their own instants, fails the same way in the simulator.
+#[test]
+fn a_pair_at_independent_instants_replays() {
+    use limpet::faults::{ActuatorFault, Injection, TrackFault};
+    let policy = "scenarios/van/van_throttle.limp";
+    let m = load(policy);
+    let vehicle = Vehicle::new(&m).expect("plant derives");
+    let reqs = prove::requirements(&m);
+    let idle = reqs
+        .iter()
+        .position(|r| matches!(r, prove::Requirement::Idle { .. }))
+        .expect("idle requirement");
+    let pair = [
+        Injection::Actuator {
+            fault: ActuatorFault::SpringBroken,
+        },
+        Injection::Track {
+            track: m.track_ref("throttle", "b").expect("track"),
+            fault: TrackFault::Open,
+        },
+    ];
+    // 40 % for 1 s (the spring breaks at 0.3 s, the wire at 0.9 s), then released for 1.5 s.
+    let mut pedal = vec![40.0; 200];
+    pedal.extend(vec![0.0; 300]);
+    let found = search::replay_check(&vehicle, &pair, &pedal, 60, Some(180), &reqs);
+    let v = found[idle]
+        .clone()
+        .expect("the pair breaks the idle requirement");
+    assert_eq!(v.second_step, Some(180));
+    // The script puts each break at its own instant and replays to the same failure.
+    let cfg = focused("actuator spring broken");
+    let proof = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+    let row = prove::Row {
+        faults: pair.to_vec(),
+        ..proof.rows[0].clone()
+    };
+    let text = prove::report::script(&m, &proof, &row, &v, "pair", "unused.limp");
+    assert!(
+        text.contains("at 300 ms    break actuator spring broken"),
+        "{text}"
+    );
+    assert!(
+        text.contains("at 900 ms    break throttle.b open"),
+        "{text}"
+    );
+    let dir = temp_dir("pair");
+    let file = dir.join("pair.scenario");
+    std::fs::write(&file, &text).expect("write");
+    let run = RunConfig {
+        policy: Some(policy.to_string()),
+        ..RunConfig::default()
+    };
+    let out = app::run(&[file.to_string_lossy().into_owned()], &run);
+    assert_eq!(out.exit, Exit::Finding, "{text}\n{}", out.stdout);
+    let _ = std::fs::remove_dir_all(&dir);
 }
