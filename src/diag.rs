@@ -66,6 +66,21 @@ impl Diagnostic {
         self
     }
 
+    /// A line given twice where one is allowed (`period`, `length`, ...).
+    pub fn duplicate_item(what: &str, span: Span, first: Span) -> Diagnostic {
+        Diagnostic::error("duplicate-item", span, format!("`{what}` is given twice"))
+            .with_label("given again here")
+            .with_related(first, "first given here")
+            .with_hint(format!("keep one `{what}` line"))
+    }
+
+    /// A required line that is absent, with an example of it.
+    pub fn missing_item(span: Span, what: &str, label: String, example: &str) -> Diagnostic {
+        Diagnostic::error("missing-item", span, format!("{what} is missing"))
+            .with_label(label)
+            .with_hint(format!("add a line such as `{example}`"))
+    }
+
     pub fn is_error(&self) -> bool {
         self.severity == Severity::Error
     }

@@ -240,23 +240,19 @@ impl Lower {
     fn once<T>(&mut self, slot: &mut Option<(T, Span)>, value: T, span: Span, what: &str) {
         if let Some((_, first)) = slot {
             let first = *first;
-            self.err(
-                Diagnostic::error("duplicate-item", span, format!("`{what}` is given twice"))
-                    .with_label("given again here")
-                    .with_related(first, "first given here")
-                    .with_hint(format!("keep one `{what}` line")),
-            );
+            self.err(Diagnostic::duplicate_item(what, span, first));
         } else {
             *slot = Some((value, span));
         }
     }
 
     fn missing(&mut self, span: Span, what: &str, example: &str) {
-        self.err(
-            Diagnostic::error("missing-item", span, format!("{what} is missing"))
-                .with_label(format!("needs {what}"))
-                .with_hint(format!("add a line such as `{example}`")),
-        );
+        self.err(Diagnostic::missing_item(
+            span,
+            what,
+            format!("needs {what}"),
+            example,
+        ));
     }
 
     fn unknown(&mut self, what: &str, name: &str, span: Span, candidates: &[&str]) {

@@ -327,23 +327,19 @@ impl Resolver<'_> {
     fn once<T>(&mut self, what: &str, slot: &mut Option<(T, Span)>, value: T, span: Span) {
         if let Some((_, first)) = slot {
             let first = *first;
-            self.err(
-                Diagnostic::error("duplicate-item", span, format!("`{what}` is given twice"))
-                    .with_label("given again here")
-                    .with_related(first, "first given here")
-                    .with_hint(format!("keep one `{what}` line")),
-            );
+            self.err(Diagnostic::duplicate_item(what, span, first));
         } else {
             *slot = Some((value, span));
         }
     }
 
     fn missing(&mut self, span: Span, what: &str, example: &str) {
-        self.err(
-            Diagnostic::error("missing-item", span, format!("{what} is missing"))
-                .with_label(format!("this scenario needs {what}"))
-                .with_hint(format!("add a line such as `{example}`")),
-        );
+        self.err(Diagnostic::missing_item(
+            span,
+            what,
+            format!("this scenario needs {what}"),
+            example,
+        ));
     }
 
     fn length(&mut self, q: &Quantity) -> Option<Time> {
