@@ -582,11 +582,20 @@ pub fn advance(
     };
     let h = p.substep_s;
     let full = dt.0 / p.substep.0.max(1);
+    let mut at_rest = false;
     for _ in 0..full {
-        (x, v) = substep(p, x, v, motor, spring_on, h);
+        let (xn, vn) = substep(p, x, v, motor, spring_on, h);
+        // A plate at rest that stays at rest (held by static friction, or pressed against a
+        // stop) stays so for every further sub-step of this call, whatever their length: the
+        // drive and the springs do not change within it. Stopping here is exact.
+        if v == 0.0 && vn == 0.0 && xn == x {
+            at_rest = true;
+            break;
+        }
+        (x, v) = (xn, vn);
     }
     let rest = dt.0 % p.substep.0.max(1);
-    if rest > 0 {
+    if rest > 0 && !at_rest {
         (x, v) = substep(p, x, v, motor, spring_on, rest as f64 * 1e-9);
     }
     PlantState {
