@@ -298,7 +298,9 @@ pub fn summary(m: &Model, p: &Proof) -> String {
         );
     }
     let _ = writeln!(o, "{}", coverage(m, p));
-    o.push_str("matrix figures are estimates over the stored states; VIOLATED cells are exact replays.\n");
+    o.push_str(
+        "matrix figures are estimates over the stored states; VIOLATED cells are exact replays.\n",
+    );
     o.push_str("limpet is a design aid, not a safety case: these verdicts hold for this model, catalogue, grid and horizon only.\n");
     o
 }
