@@ -251,6 +251,11 @@ pub enum Event {
     FaultPending {
         fault: FaultId,
     },
+    /// A pending debounce ran out without the fault setting (the condition went away, or the
+    /// counter fell back to its passed threshold).
+    FaultLapsed {
+        fault: FaultId,
+    },
     FaultSet {
         fault: FaultId,
     },
@@ -699,6 +704,9 @@ impl Controller {
                             events.push(Event::FaultSet { fault: f });
                         }
                     } else {
+                        if fs.pending {
+                            events.push(Event::FaultLapsed { fault: f });
+                        }
                         fs.pending = false;
                         fs.count = 0;
                     }
@@ -728,6 +736,9 @@ impl Controller {
                     let running = fs.count > lo;
                     if running && !fs.pending {
                         events.push(Event::FaultPending { fault: f });
+                    }
+                    if !running && fs.pending {
+                        events.push(Event::FaultLapsed { fault: f });
                     }
                     fs.pending = running;
                     if cond && fs.count >= hi {

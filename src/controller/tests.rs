@@ -911,3 +911,25 @@ fn the_position_loop_tracks_the_plant_modules_throttle_body() {
     assert!(!st.fault_pending(TRACKING) && !st.fault_set(TRACKING));
     assert_eq!(st.mode(), NORMAL);
 }
+
+#[test]
+fn a_pending_debounce_that_runs_out_reports_lapsed() {
+    let m = unfiltered(van());
+    let mut b = Bench::new(&m, 35.0);
+    b.run(10);
+    b.brk(PA, 0.0);
+    let out = b.step().clone();
+    assert_eq!(out.events, vec![Event::FaultPending { fault: PEDAL_A_LOW }]);
+    b.run(1);
+    // Mended after two of the four steps the 20 ms debounce needs: it lapses, never sets.
+    b.mend(PA);
+    let out = b.step().clone();
+    assert!(
+        out.events
+            .contains(&Event::FaultLapsed { fault: PEDAL_A_LOW }),
+        "{:?}",
+        out.events
+    );
+    assert!(!b.st.fault_pending(PEDAL_A_LOW));
+    assert!(!b.st.fault_set(PEDAL_A_LOW));
+}

@@ -221,6 +221,7 @@ fn event_key(
         EventKind::Break { text } => format!("break {text}"),
         EventKind::Mend { text } => format!("mend {text}"),
         EventKind::FaultPending { fault: f } => format!("fault {} pending", fault(*f)),
+        EventKind::FaultLapsed { fault: f } => format!("fault {} lapsed", fault(*f)),
         EventKind::FaultSet { fault: f } => format!("fault {} set", fault(*f)),
         EventKind::FaultCleared { fault: f } => format!("fault {} cleared", fault(*f)),
         EventKind::Transition { from, to, .. } => format!("mode {} -> {}", mode(*from), mode(*to)),

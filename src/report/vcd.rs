@@ -126,6 +126,9 @@ pub fn write(trace: &Trace) -> String {
             EventKind::FaultPending { fault } => {
                 changes.push((e.at, 0, k, Change::Bit(pending_base + fault, true)));
             }
+            EventKind::FaultLapsed { fault } => {
+                changes.push((e.at, 0, k, Change::Bit(pending_base + fault, false)));
+            }
             EventKind::FaultSet { fault } => {
                 changes.push((e.at, 0, k, Change::Bit(pending_base + fault, false)));
                 changes.push((e.at, 0, k, Change::Bit(set_base + fault, true)));

@@ -155,6 +155,7 @@ pub fn run_on(vehicle: &Vehicle, script: &Script, opts: RunOptions) -> Trace {
             for e in &controller_events {
                 let kind = match *e {
                     Event::FaultPending { fault } => EventKind::FaultPending { fault },
+                    Event::FaultLapsed { fault } => EventKind::FaultLapsed { fault },
                     Event::FaultSet { fault } => {
                         watch.fault_set_at[fault] = Some(now);
                         EventKind::FaultSet { fault }

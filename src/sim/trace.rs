@@ -44,6 +44,10 @@ pub enum EventKind {
     FaultPending {
         fault: usize,
     },
+    /// A pending debounce ran out without setting.
+    FaultLapsed {
+        fault: usize,
+    },
     FaultSet {
         fault: usize,
     },
@@ -99,6 +103,7 @@ impl Trace {
             EventKind::Break { text } => format!("break {text}"),
             EventKind::Mend { text } => format!("mend {text}"),
             EventKind::FaultPending { fault: f } => format!("fault {} pending", fault(*f)),
+            EventKind::FaultLapsed { fault: f } => format!("fault {} lapsed", fault(*f)),
             EventKind::FaultSet { fault: f } => format!("fault {} set", fault(*f)),
             EventKind::FaultCleared { fault: f } => format!("fault {} cleared", fault(*f)),
             EventKind::Transition { from, to, guard } => {

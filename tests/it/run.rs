@@ -411,6 +411,7 @@ fn agree_with_bare_controller(path: &str) {
             .iter()
             .map(|e| match *e {
                 Event::FaultPending { fault } => EventKind::FaultPending { fault },
+                Event::FaultLapsed { fault } => EventKind::FaultLapsed { fault },
                 Event::FaultSet { fault } => EventKind::FaultSet { fault },
                 Event::FaultCleared { fault } => EventKind::FaultCleared { fault },
                 Event::Transition { from, to, .. } => EventKind::Transition {
