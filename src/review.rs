@@ -336,12 +336,7 @@ fn counterexamples(m: &Model, p: &crate::prove::Proof, policy_file: &str) -> Vec
             out.push(Counterexample {
                 name,
                 requirement: req.text(m),
-                fault: row
-                    .faults
-                    .iter()
-                    .map(|i| crate::faults::describe(m, i))
-                    .collect::<Vec<_>>()
-                    .join(" + "),
+                fault: row.describe(m),
                 script,
                 plot,
             });

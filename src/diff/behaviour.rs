@@ -408,25 +408,11 @@ fn row_cells(
             format!("{:.1} %", r.worst_excess.max(0.0)),
         ),
     ];
-    for (ri, req) in p.requirements.iter().enumerate() {
-        let v = if r.violations.iter().any(|v| v.requirement == ri) {
-            "VIOLATED"
-        } else if r.truncated {
-            "?"
-        } else {
-            "ok"
-        };
+    let verdicts = crate::prove::report::verdicts(p, row);
+    for (req, v) in p.requirements.iter().zip(verdicts) {
         c.push((req.text(m), v.to_string()));
     }
     c
-}
-
-fn describe_row(m: &Model, row: &Row) -> String {
-    row.faults
-        .iter()
-        .map(|i| crate::faults::describe(m, i))
-        .collect::<Vec<_>>()
-        .join(" + ")
 }
 
 /// Compares two proofs row by row, matching rows by their fault description.
@@ -438,22 +424,12 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
     let old_rows: Vec<(String, Vec<(String, String)>)> = po
         .rows
         .iter()
-        .map(|r| {
-            (
-                describe_row(names.old, r),
-                row_cells(names.old, po, r, &of, &om),
-            )
-        })
+        .map(|r| (r.describe(names.old), row_cells(names.old, po, r, &of, &om)))
         .collect();
     let new_rows: Vec<(String, Vec<(String, String)>)> = pn
         .rows
         .iter()
-        .map(|r| {
-            (
-                describe_row(names.new, r),
-                row_cells(names.new, pn, r, &nf, &nm),
-            )
-        })
+        .map(|r| (r.describe(names.new), row_cells(names.new, pn, r, &nf, &nm)))
         .collect();
     let mut changed = Vec::new();
     for (fault, oc) in &old_rows {

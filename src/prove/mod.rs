@@ -161,6 +161,39 @@ pub struct Row {
     pub result: FaultResult,
 }
 
+/// What the search says of one requirement for one fault set.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Verdict {
+    /// A confirmed violation exists.
+    Violated,
+    /// No violation found, but the search hit its bound.
+    Inconclusive,
+    /// No violation within the search's coverage.
+    Holds,
+}
+
+impl Row {
+    /// The fault set in the scenario language's words: `pedal.a open + actuator stuck`.
+    pub fn describe(&self, m: &Model) -> String {
+        self.faults
+            .iter()
+            .map(|i| crate::faults::describe(m, i))
+            .collect::<Vec<_>>()
+            .join(" + ")
+    }
+
+    /// The verdict on requirement `ri`.
+    pub fn verdict(&self, ri: usize) -> Verdict {
+        if self.result.violations.iter().any(|v| v.requirement == ri) {
+            Verdict::Violated
+        } else if self.result.truncated {
+            Verdict::Inconclusive
+        } else {
+            Verdict::Holds
+        }
+    }
+}
+
 /// The whole proof.
 #[derive(Clone, Debug)]
 pub struct Proof {

@@ -8,14 +8,6 @@ use crate::model::Model;
 use crate::time::{Time, trim};
 use std::fmt::Write;
 
-fn fault_text(m: &Model, row: &Row) -> String {
-    row.faults
-        .iter()
-        .map(|i| describe(m, i))
-        .collect::<Vec<_>>()
-        .join(" + ")
-}
-
 fn ms(t: Option<Time>) -> String {
     t.map_or("-".into(), |t| format!("{} ms", trim(t.as_ms_f64())))
 }
@@ -43,16 +35,12 @@ fn mode_names(m: &Model, ms: &[usize]) -> String {
 }
 
 /// `ok`, `VIOLATED` or `?` (bound hit) per requirement.
-fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
+pub fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
     (0..p.requirements.len())
-        .map(|ri| {
-            if row.result.violations.iter().any(|v| v.requirement == ri) {
-                "VIOLATED"
-            } else if row.result.truncated {
-                "?"
-            } else {
-                "ok"
-            }
+        .map(|ri| match row.verdict(ri) {
+            super::Verdict::Violated => "VIOLATED",
+            super::Verdict::Inconclusive => "?",
+            super::Verdict::Holds => "ok",
         })
         .collect()
 }
@@ -61,7 +49,7 @@ fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
 fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
     let r = &row.result;
     let mut c = vec![
-        fault_text(m, row),
+        row.describe(m),
         if row.faults.len() == 1 {
             names(m, &row.seen_by)
         } else {
@@ -144,7 +132,7 @@ pub fn prepass(m: &Model, p: &Proof) -> String {
         .iter()
         .filter(|r| r.faults.len() == 1 && r.seen_by.is_empty())
     {
-        let _ = writeln!(o, "  {}", fault_text(m, row));
+        let _ = writeln!(o, "  {}", row.describe(m));
         n += 1;
     }
     if n == 0 {
@@ -207,7 +195,7 @@ pub fn stories(m: &Model, p: &Proof) -> String {
                     let _ = writeln!(
                         o,
                         "  fault {} injected at {}",
-                        fault_text(m, row),
+                        row.describe(m),
                         secs(inject)
                     );
                 }
@@ -324,7 +312,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
         .map(|row| {
             let r = &row.result;
             serde_json::json!({
-                "fault": fault_text(m, row),
+                "fault": row.describe(m),
                 "injections": row.faults,
                 "seen_by": row.seen_by.iter().map(|&f| &m.faults[f].name).collect::<Vec<_>>(),
                 "uncorrectable": row.uncorrectable,
@@ -382,7 +370,7 @@ pub fn script(
     let _ = writeln!(
         o,
         "# Counterexample from limpet prove: {} breaks `{req}`.",
-        fault_text(m, row)
+        row.describe(m)
     );
     let _ = writeln!(
         o,

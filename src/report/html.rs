@@ -208,12 +208,7 @@ impl Page<'_> {
         };
         for row in &p.rows {
             let r = &row.result;
-            let fault = row
-                .faults
-                .iter()
-                .map(|i| crate::faults::describe(m, i))
-                .collect::<Vec<_>>()
-                .join(" + ");
+            let fault = row.describe(m);
             let modes = if r.end_modes.is_empty() {
                 "-".into()
             } else {
@@ -251,16 +246,13 @@ impl Page<'_> {
                 let _ = write!(o, "<td>{}</td>", esc(c));
             }
             for ri in 0..p.requirements.len() {
-                let (class, text) = if r.violations.iter().any(|v| v.requirement == ri) {
-                    if row.uncorrectable {
+                let (class, text) = match row.verdict(ri) {
+                    crate::prove::Verdict::Violated if row.uncorrectable => {
                         ("violated", "VIOLATED (uncorrectable)")
-                    } else {
-                        ("violated", "VIOLATED")
                     }
-                } else if r.truncated {
-                    ("inconclusive", "? (bound hit)")
-                } else {
-                    ("holds", "ok")
+                    crate::prove::Verdict::Violated => ("violated", "VIOLATED"),
+                    crate::prove::Verdict::Inconclusive => ("inconclusive", "? (bound hit)"),
+                    crate::prove::Verdict::Holds => ("holds", "ok"),
                 };
                 let _ = write!(o, "<td class=\"{class}\">{text}</td>");
             }
