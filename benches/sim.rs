@@ -4,7 +4,7 @@
 
 use limpet::controller::{Controller, Outputs, Sample};
 use limpet::model::Model;
-use limpet::plant::{self, ActuatorCondition, PlantParams, PlantState};
+use limpet::plant::{self, ActuatorCondition, PlantParams, PlantState, Plate};
 use limpet::sim::engine::{self, RunOptions};
 use limpet::sim::script::{self, Script};
 use limpet::sim::system::Vehicle;
@@ -93,7 +93,7 @@ fn main() {
             eprintln!("skipped {name}: no plant");
             continue;
         };
-        substep = vehicle.params.substep();
+        substep = vehicle.plate.params.substep();
         // The replay proper, on a vehicle prepared once (see `setup` below for what
         // `engine::run` adds to each call).
         let (runs, wall) = timed(|| {
@@ -189,8 +189,28 @@ fn main() {
     });
     let period_rate = calls as f64 * 20.0 * per_period as f64 / wall;
     println!(
-        "plant, period per call:  {:>14.0} sub-steps/s  ({per_period} sub-steps a call)",
+        "plant, period per call:  {:>14.0} sub-steps/s  ({per_period} sub-steps a call, one by one)",
         period_rate
+    );
+    // The same calls through the closed-form jumps the engine and the prover use.
+    let plate = Plate::new(params.clone());
+    let (calls, wall) = timed(|| {
+        for _ in 0..20 {
+            k = k.wrapping_add(1);
+            let duty = if (k / 10).is_multiple_of(2) {
+                60.0
+            } else {
+                -40.0
+            };
+            s = plate.advance(s, duty, true, &healthy, model.period);
+        }
+        black_box(s);
+    });
+    let jump_rate = calls as f64 * 20.0 * per_period as f64 / wall;
+    println!(
+        "plant, period per call:  {:>14.0} sub-steps/s  (in jumps; {:.1}x one by one)",
+        jump_rate,
+        jump_rate / period_rate
     );
 
     // Controller: a pedal sweep through intact wiring, the plate following the target.
@@ -225,7 +245,7 @@ fn main() {
     // What the parts alone allow: per simulated second, steps and sub-steps at these rates.
     let steps_per_s = 1.0 / model.period.as_secs_f64();
     let subs_per_s = 1.0 / params.substep().as_secs_f64();
-    let bound = 1.0 / (steps_per_s / ctl_rate + subs_per_s / plant_rate);
+    let bound = 1.0 / (steps_per_s / ctl_rate + subs_per_s / jump_rate);
     println!(
         "bound from the parts:    {bound:>14.0} x real time ({steps_per_s:.0} steps + {subs_per_s:.0} sub-steps per simulated s)"
     );

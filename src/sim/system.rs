@@ -5,7 +5,7 @@
 use crate::controller::{Controller, Event, Outputs, Sample, State};
 use crate::faults::{self, ActiveFault, Injection};
 use crate::model::{Model, SensorId};
-use crate::plant::{self, ActuatorCondition, PlantError, PlantParams, PlantState};
+use crate::plant::{ActuatorCondition, PlantError, PlantParams, PlantState, Plate};
 
 use crate::time::Time;
 
@@ -13,14 +13,14 @@ use crate::time::Time;
 #[derive(Clone, Debug)]
 pub struct Vehicle {
     pub ctl: Controller,
-    pub params: PlantParams,
+    pub plate: Plate,
 }
 
 impl Vehicle {
     pub fn new(model: &Model) -> Result<Vehicle, PlantError> {
         Ok(Vehicle {
             ctl: Controller::new(model),
-            params: PlantParams::derive(&model.actuator)?,
+            plate: Plate::new(PlantParams::derive(&model.actuator)?),
         })
     }
 }
@@ -30,7 +30,7 @@ impl Vehicle {
 #[derive(Clone, Debug)]
 pub struct System<'v> {
     ctl: &'v Controller,
-    params: &'v PlantParams,
+    params: &'v Plate,
     /// Whether the key is on.
     key: bool,
     /// The controller's memory; `None` until the first step after key on.
@@ -79,21 +79,16 @@ pub fn period(
     sample_pins(model, positions, active, now, &mut scratch.0);
     vehicle.ctl.step_in_place(state, &scratch.0, &mut scratch.1);
     let condition = faults::actuator_condition(active);
-    *plate = plant::advance(
-        &vehicle.params,
-        *plate,
-        scratch.1.duty,
-        scratch.1.drive_on,
-        &condition,
-        dt,
-    );
+    *plate = vehicle
+        .plate
+        .advance(*plate, scratch.1.duty, scratch.1.drive_on, &condition, dt);
 }
 
 impl<'v> System<'v> {
     /// Key on at rest: the plate at its default position, the pedal released, inputs at the
     /// top of their band (the most the other controller may ask for).
     pub fn new(vehicle: &'v Vehicle) -> System<'v> {
-        let (ctl, params) = (&vehicle.ctl, &vehicle.params);
+        let (ctl, params) = (&vehicle.ctl, &vehicle.plate);
         let model = ctl.model();
         let mut sample = Sample::healthy(model, &vec![0.0; model.sensors.len()]);
         sample.inputs = model.inputs.iter().map(|i| i.hi).collect();
@@ -221,18 +216,13 @@ impl<'v> System<'v> {
     /// Advances the plate by `dt` with the duty of the last step.
     pub fn advance_plant(&mut self, _now: Time, dt: Time) {
         let on = self.key && self.out.drive_on;
-        self.plate = plant::advance(
-            self.params,
-            self.plate,
-            self.out.duty,
-            on,
-            &self.condition,
-            dt,
-        );
+        self.plate = self
+            .params
+            .advance(self.plate, self.out.duty, on, &self.condition, dt);
     }
 
     pub fn substep(&self) -> Time {
-        self.params.substep()
+        self.params.params.substep()
     }
 
     pub fn opening(&self) -> f64 {

@@ -24,8 +24,11 @@
 //! return, then the motor gain by bisection against the simulated full-drive opening. Both are
 //! simulated with the same integrator [`advance`] uses, so the figures hold for the model as run.
 
+mod closed;
+
 use crate::model::Actuator;
 use crate::time::Time;
+pub use closed::Closed;
 use std::fmt;
 
 /// Fixed integration sub-step of [`advance`].
@@ -540,8 +543,48 @@ fn substep(p: &PlantParams, x: f64, v: f64, motor: f64, spring_on: bool, h: f64)
 /// Advances the plate by `dt` in fixed sub-steps of the parameters' sub-step (the last one
 /// shortened to land on `dt`). `duty` is the signed H-bridge duty in percent (clamped to
 /// -100..100, non-finite reads as 0); with `drive_on` false the motor exerts no torque.
+/// Sub-steps one at a time; [`Plate::advance`] gives the same plate faster.
 pub fn advance(
     p: &PlantParams,
+    s: PlantState,
+    duty: f64,
+    drive_on: bool,
+    c: &ActuatorCondition,
+    dt: Time,
+) -> PlantState {
+    advance_in(p, None, s, duty, drive_on, c, dt)
+}
+
+/// A plate model ready to run: the parameters and their closed-form tables.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Plate {
+    pub params: PlantParams,
+    closed: Closed,
+}
+
+impl Plate {
+    pub fn new(params: PlantParams) -> Plate {
+        let closed = Closed::new(&params);
+        Plate { params, closed }
+    }
+
+    /// As [`advance`], with runs of sub-steps between the plate's events taken in one
+    /// closed-form jump; equal to [`advance`] up to rounding.
+    pub fn advance(
+        &self,
+        s: PlantState,
+        duty: f64,
+        drive_on: bool,
+        c: &ActuatorCondition,
+        dt: Time,
+    ) -> PlantState {
+        advance_in(&self.params, Some(&self.closed), s, duty, drive_on, c, dt)
+    }
+}
+
+fn advance_in(
+    p: &PlantParams,
+    closed: Option<&Closed>,
     s: PlantState,
     duty: f64,
     drive_on: bool,
@@ -570,30 +613,24 @@ pub fn advance(
         0.0
     };
     let spring_on = !c.spring_broken;
-    let mut x = if s.position.is_finite() {
+    let x = if s.position.is_finite() {
         s.position.clamp(0.0, 100.0)
     } else {
         p.default
     };
-    let mut v = if s.velocity.is_finite() {
+    let v = if s.velocity.is_finite() {
         s.velocity
     } else {
         0.0
     };
-    let h = p.substep_s;
     let full = dt.0 / p.substep.0.max(1);
-    let mut at_rest = false;
-    for _ in 0..full {
-        let (xn, vn) = substep(p, x, v, motor, spring_on, h);
-        // A plate at rest that stays at rest (held by static friction, or pressed against a
-        // stop) stays so for every further sub-step of this call, whatever their length: the
-        // drive and the springs do not change within it. Stopping here is exact.
-        if v == 0.0 && vn == 0.0 && xn == x {
-            at_rest = true;
-            break;
-        }
-        (x, v) = (xn, vn);
-    }
+    let run = Run {
+        p,
+        closed,
+        motor,
+        spring_on,
+    };
+    let (mut x, mut v, at_rest) = run.steps(x, v, full);
     let rest = dt.0 % p.substep.0.max(1);
     if rest > 0 && !at_rest {
         (x, v) = substep(p, x, v, motor, spring_on, rest as f64 * 1e-9);
@@ -601,6 +638,59 @@ pub fn advance(
     PlantState {
         position: x,
         velocity: v,
+    }
+}
+
+/// The fixed inputs of one call of [`advance_in`].
+struct Run<'a> {
+    p: &'a PlantParams,
+    closed: Option<&'a Closed>,
+    motor: f64,
+    spring_on: bool,
+}
+
+/// Below this many sub-steps a failed jump is not split further.
+const MIN_JUMP: u64 = 4;
+
+impl Run<'_> {
+    /// `n` full sub-steps; the flag says the plate came to rest and stays there.
+    fn steps(&self, x: f64, v: f64, n: u64) -> (f64, f64, bool) {
+        if let Some(c) = self.closed
+            && n >= MIN_JUMP
+            && v != 0.0
+        {
+            if let Some((x, v)) = c.jump(self.p, x, v, self.motor, self.spring_on, n) {
+                return (x, v, false);
+            }
+            // An event falls inside: halve the run and try each half.
+            let first = n / 2;
+            let (x, v, rest) = self.steps(x, v, first);
+            if rest {
+                return (x, v, true);
+            }
+            return self.steps(x, v, n - first);
+        }
+        self.one_by_one(x, v, n)
+    }
+
+    fn one_by_one(&self, mut x: f64, mut v: f64, n: u64) -> (f64, f64, bool) {
+        let h = self.p.substep_s;
+        for i in 0..n {
+            let (xn, vn) = substep(self.p, x, v, self.motor, self.spring_on, h);
+            // A plate at rest that stays at rest (held by static friction, or pressed
+            // against a stop) stays so for every further sub-step of this call, whatever
+            // their length: the drive and the springs do not change within it. Stopping here
+            // is exact.
+            if v == 0.0 && vn == 0.0 && xn == x {
+                return (x, v, true);
+            }
+            (x, v) = (xn, vn);
+            // Moving again after a rest or a reversal: the rest may go in jumps.
+            if self.closed.is_some() && v != 0.0 && n - i > MIN_JUMP {
+                return self.steps(x, v, n - i - 1);
+            }
+        }
+        (x, v, false)
     }
 }
 
@@ -1012,5 +1102,47 @@ mod tests {
         let spring = time_to_reach(&p, 0.0, 20.0, 0.0, false, 1.0).expect("returns");
         assert!((open - 0.120).abs() < 0.05 * 0.120, "open {open}");
         assert!((spring - 0.060).abs() < 0.05 * 0.060, "spring {spring}");
+    }
+
+    #[test]
+    fn jumps_agree_with_sub_steps() {
+        // The closed form must give the sub-stepped plate up to rounding, over every kind of
+        // call: at rest, moving, reversing, crossing the detent, against a stop, broken
+        // springs, weak motors, short and long and ragged durations.
+        let p = PlantParams::derive(&reference()).expect("derives");
+        let fast = Plate::new(p.clone());
+        let mut rng: u64 = 0x2545_f491_4f6c_dd1d;
+        let mut next = move || {
+            rng ^= rng << 13;
+            rng ^= rng >> 7;
+            rng ^= rng << 17;
+            (rng >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mut worst: f64 = 0.0;
+        for _ in 0..20_000 {
+            let s = PlantState {
+                position: if next() < 0.1 { 7.0 } else { next() * 100.0 },
+                velocity: if next() < 0.2 {
+                    0.0
+                } else {
+                    (next() - 0.5) * 3000.0
+                },
+            };
+            let duty = (next() - 0.5) * 220.0;
+            let c = ActuatorCondition {
+                stuck_at: None,
+                torque_factor: if next() < 0.2 { next() } else { 1.0 },
+                spring_broken: next() < 0.1,
+            };
+            let dt = Time((next() * 20e6) as u64);
+            let on = next() < 0.9;
+            let slow = advance(&p, s, duty, on, &c, dt);
+            let quick = fast.advance(s, duty, on, &c, dt);
+            let d = (slow.position - quick.position)
+                .abs()
+                .max((slow.velocity - quick.velocity).abs() * 1e-3);
+            worst = worst.max(d);
+        }
+        assert!(worst < 1e-9, "largest difference {worst}");
     }
 }
