@@ -44,6 +44,20 @@ fn main() {
     );
     run("single faults, defaults, all threads", Config::default());
     run(
+        "single faults, twin paired exactly, all threads",
+        Config {
+            exact_twin: true,
+            ..Config::default()
+        },
+    );
+    run(
+        "single faults, 1 M states bound, all threads",
+        Config {
+            max_states: 1_000_000,
+            ..Config::default()
+        },
+    );
+    run(
         "pedal.a shorts and stuck, with their pairs",
         Config {
             scope: Some(FaultScope::Double),
@@ -51,8 +65,9 @@ fn main() {
             ..Config::default()
         },
     );
-    // What one stored state costs: the visited digest (16 bytes), its release timer (2), the
-    // path record (parent, pedal, origin: 9) and the hash table's control byte and slack.
-    let per_state = 16 + 2 + 9 + 1;
+    // What one stored state costs: the visited digest (16 bytes) and its requirement timers
+    // (4), the path record (parent, pedal, origin: 9, padded to 12), the hash table's control
+    // byte; plus the slack of a table at load factor 7/8 and the frontier's states in flight.
+    let per_state = 16 + 4 + 12 + 1;
     println!("bytes per stored state: about {per_state} plus hash-table slack (load factor 7/8)");
 }

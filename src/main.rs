@@ -91,14 +91,11 @@ enum Command {
         /// The policy file (.limp).
         policy: String,
         /// Pedal grid step in percent.
-        #[arg(long, default_value_t = 10.0)]
+        #[arg(long, default_value_t = limpet::prove::Config::default().grid)]
         grid: f64,
         /// Quantisation of continuous states in percent.
-        #[arg(long, default_value_t = 10.0)]
+        #[arg(long, default_value_t = limpet::prove::Config::default().resolution)]
         resolution: f64,
-        /// Fault-free states that agree at this resolution (percent) share an injection instant.
-        #[arg(long, default_value_t = 20.0)]
-        injection_resolution: f64,
         /// Time followed after each injection, e.g. `1.2s`.
         #[arg(long, value_parser = parse_time, default_value = "1.2s")]
         horizon: limpet::time::Time,
@@ -111,6 +108,10 @@ enum Command {
         /// Let the pedal jump anywhere on the grid each period.
         #[arg(long)]
         free_pedal: bool,
+        /// Pair each faulty state with its fault-free twin's whole state, not its plate alone
+        /// (exact absence claims at the resolution; many more states).
+        #[arg(long)]
+        exact_twin: bool,
         /// Search pairs too, whatever the policy's `faults` line says.
         #[arg(long)]
         double: bool,
@@ -247,11 +248,11 @@ fn main() -> ExitCode {
             policy,
             grid,
             resolution,
-            injection_resolution,
             horizon,
             max_states,
             jobs,
             free_pedal,
+            exact_twin,
             double,
             only,
             counterexamples,
@@ -263,10 +264,10 @@ fn main() -> ExitCode {
                 let search = limpet::prove::Config {
                     grid,
                     resolution,
-                    injection_resolution,
                     horizon,
                     max_states,
                     free_pedal,
+                    exact_twin,
                     jobs,
                     scope: double.then_some(limpet::model::FaultScope::Double),
                     only,

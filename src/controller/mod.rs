@@ -103,7 +103,7 @@ struct FaultState {
 
 /// Everything the controller remembers between steps. Plain data: clone it, compare it,
 /// encode it for a visited set.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Debug, PartialEq)]
 pub struct State {
     mode: ModeId,
     /// Filtered volts, every track of every sensor in model order, flattened.
@@ -117,6 +117,30 @@ pub struct State {
     /// in the current mode. Only the edges out of the current mode count; all reset on a
     /// mode change.
     dwell: Vec<u32>,
+}
+
+impl Clone for State {
+    fn clone(&self) -> State {
+        State {
+            mode: self.mode,
+            volts: self.volts.clone(),
+            target: self.target,
+            integral: self.integral,
+            faults: self.faults.clone(),
+            dwell: self.dwell.clone(),
+        }
+    }
+
+    /// Reuses the buffers: the prover copies a state into scratch for every successor it
+    /// tries, and keeps few of them.
+    fn clone_from(&mut self, source: &State) {
+        self.mode = source.mode;
+        self.volts.clone_from(&source.volts);
+        self.target = source.target;
+        self.integral = source.integral;
+        self.faults.clone_from(&source.faults);
+        self.dwell.clone_from(&source.dwell);
+    }
 }
 
 impl State {
@@ -222,6 +246,86 @@ impl State {
         }
         put_quantised(out, self.target, quantum);
         put_quantised(out, self.integral, quantum);
+    }
+}
+
+/// Which parts of a controller's memory can still influence the plate or a mode change (see
+/// `prove::cone`); the rest may be left out of a visited-set key.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Hash)]
+pub struct Relevance {
+    /// Per flattened track (model order): its filter state.
+    pub tracks: Vec<bool>,
+    /// Per fault: its debounce and heal state.
+    pub faults: Vec<bool>,
+    /// Per transition: its dwell counter.
+    pub transitions: Vec<bool>,
+    pub target: bool,
+    pub integral: bool,
+}
+
+impl State {
+    /// As [`State::encode`], with only the parts `rel` marks (the mode always).
+    pub fn encode_relevant(&self, model: &Model, quantum: f64, rel: &Relevance, out: &mut Vec<u8>) {
+        put_varint(out, self.mode as u64);
+        for (f, on) in self.faults.iter().zip(&rel.faults) {
+            if *on {
+                out.push(u8::from(f.set) | (u8::from(f.pending) << 1));
+                put_varint(out, u64::from(f.count));
+                put_varint(out, u64::from(f.heal));
+            }
+        }
+        for (&d, on) in self.dwell.iter().zip(&rel.transitions) {
+            if *on {
+                put_varint(out, u64::from(d));
+            }
+        }
+        let slopes = model
+            .sensors
+            .iter()
+            .flat_map(|s| s.tracks.iter().map(|t| t.mean_slope()));
+        for ((&v, slope), on) in self.volts.iter().zip(slopes).zip(&rel.tracks) {
+            if *on {
+                put_quantised(out, v, quantum * slope.abs());
+            }
+        }
+        if rel.target {
+            put_quantised(out, self.target, quantum);
+        }
+        if rel.integral {
+            put_quantised(out, self.integral, quantum);
+        }
+    }
+
+    /// Whether fault `f` is set and stays set until the next key on.
+    pub fn latched(&self, model: &Model, f: FaultId) -> bool {
+        self.fault_set(f) && matches!(model.faults[f].healing, crate::model::Healing::Latch)
+    }
+
+    /// Bit-exact equality of the parts `rel` marks (the mode always): a state whose marked
+    /// parts a step leaves unchanged is a fixed point of them.
+    pub fn same_relevant(&self, other: &State, rel: &Relevance) -> bool {
+        let on = |v: &[bool], i: usize| v.get(i).copied().unwrap_or(true);
+        self.mode == other.mode
+            && self
+                .faults
+                .iter()
+                .zip(&other.faults)
+                .enumerate()
+                .all(|(i, (a, b))| !on(&rel.faults, i) || a == b)
+            && self
+                .dwell
+                .iter()
+                .zip(&other.dwell)
+                .enumerate()
+                .all(|(i, (a, b))| !on(&rel.transitions, i) || a == b)
+            && self
+                .volts
+                .iter()
+                .zip(&other.volts)
+                .enumerate()
+                .all(|(i, (a, b))| !on(&rel.tracks, i) || a.to_bits() == b.to_bits())
+            && (!rel.target || self.target.to_bits() == other.target.to_bits())
+            && (!rel.integral || self.integral.to_bits() == other.integral.to_bits())
     }
 }
 

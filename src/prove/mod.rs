@@ -1,6 +1,7 @@
 //! Exhaustive fault search: the fault space, the search over driver behaviour and injection
 //! instants, the reaction matrix, and counterexamples written as scenario scripts that replay.
 
+pub mod cone;
 pub mod report;
 pub mod search;
 pub mod space;
@@ -19,12 +20,13 @@ pub struct Config {
     pub grid: f64,
     /// Quantisation of continuous states in the visited set, percent (volts proportionally).
     pub resolution: f64,
-    /// Fault-free states that agree at this resolution (percent) share one injection instant.
-    pub injection_resolution: f64,
     /// How long after each injection every branch is followed.
     pub horizon: Time,
     /// Bound on stored states per search.
     pub max_states: usize,
+    /// Pair each faulty state with its fault-free twin exactly (the twin's whole state at the
+    /// resolution) rather than by the twin's plate alone.
+    pub exact_twin: bool,
     /// The pedal may jump anywhere on the grid each period, not only one step.
     pub free_pedal: bool,
     pub jobs: usize,
@@ -37,11 +39,11 @@ pub struct Config {
 impl Default for Config {
     fn default() -> Self {
         Config {
-            grid: 10.0,
+            grid: 5.0,
             resolution: 10.0,
-            injection_resolution: 20.0,
             horizon: Time::from_ms(1200),
             max_states: 100_000,
+            exact_twin: false,
             free_pedal: false,
             jobs: 0,
             scope: None,

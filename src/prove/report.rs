@@ -98,7 +98,7 @@ fn headers(p: &Proof) -> Vec<String> {
 pub fn coverage(m: &Model, p: &Proof) -> String {
     let c = &p.config;
     format!(
-        "policy {}: {} fault set{} ({}), {} states ({} fault-free), pedal grid {} %{}, resolution {} %, horizon {} after each injection, injection at every fault-free state, merged at {} % ({} injection instants per fault on average)",
+        "policy {}: {} fault set{} ({}), {} states ({} fault-free), pedal grid {} %{}, resolution {} %, horizon {} after each injection, injected into every fault-free state ({} injection instants per fault on average), twin {}",
         m.name,
         p.rows.len(),
         if p.rows.len() == 1 { "" } else { "s" },
@@ -116,8 +116,12 @@ pub fn coverage(m: &Model, p: &Proof) -> String {
         },
         trim(c.resolution),
         c.horizon,
-        trim(c.injection_resolution.max(c.resolution)),
-        p.rows.iter().map(|r| r.result.roots).sum::<usize>() / p.rows.len().max(1)
+        p.rows.iter().map(|r| r.result.roots).sum::<usize>() / p.rows.len().max(1),
+        if c.exact_twin {
+            "paired exactly"
+        } else {
+            "paired by its plate (--exact-twin to pair it whole)"
+        }
     )
 }
 

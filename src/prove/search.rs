@@ -5,9 +5,11 @@
 //! found for a requirement has the shortest path; a state whose quantised encoding was seen
 //! before is not expanded again.
 
+use super::cone::{Cone, ConeCache};
 use super::{Config, Requirement as Req};
-use crate::faults::{Injection, TrackFault};
+use crate::faults::{ActiveFault, Injection, TrackFault};
 use crate::model::Model;
+use crate::plant::PlantState;
 use crate::sim::system::{System, Vehicle};
 use crate::time::Time;
 use std::collections::HashSet;
@@ -296,7 +298,7 @@ pub struct Violation {
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct FaultResult {
     pub states: usize,
-    /// Injection instants searched from (fault-free states merged at the injection resolution).
+    /// Injection instants searched from: the fault-free states, told apart at the resolution.
     pub roots: usize,
     pub truncated: bool,
     /// Monitors set in some explored faulty state (that are not set in its twin).
@@ -320,6 +322,13 @@ pub struct FaultResult {
     /// Candidate violations that the exact replay of their path did not confirm (an effect of
     /// merging states at the resolution).
     pub unconfirmed: usize,
+    /// Every requirement was found violated (and confirmed) before the state space was
+    /// exhausted, so the search ended there: the verdicts are final, the figures cover the
+    /// part explored.
+    pub settled_early: bool,
+    /// Branches ended because the faulty vehicle settled for good at an opening that breaks
+    /// nothing (see the search).
+    pub settled: usize,
 }
 
 /// How many candidate violations of one requirement are replayed before the search gives up
@@ -428,9 +437,10 @@ pub fn replay_check(
     out
 }
 
-/// Directed probes beside the breadth-first search: from every injection instant, the driver
+/// Directed probes beside the breadth-first search: from chosen injection instants, the driver
 /// holds the pedal, or releases it at once, for the whole horizon. Deep, cheap, and exactly
-/// the drives a reviewer asks about first; every violation found is exact by construction.
+/// the drives a reviewer asks about first; every violation found is exact by construction, and
+/// finding every requirement's violation early ends the search of the fault early.
 #[allow(clippy::too_many_arguments)]
 fn probe(
     vehicle: &Vehicle,
@@ -477,6 +487,28 @@ fn probe(
     }
 }
 
+/// The instants probed: per pedal grid value, the first fault-free state reached with it (the
+/// pedal just arrived, the plate still moving) and the last one (the longest drive towards
+/// it), so that every pedal value is probed while moving and when settled.
+fn probe_roots(pre: &PreSet<'_>, grid_len: usize) -> Vec<u32> {
+    let mut first = vec![u32::MAX; grid_len];
+    let mut last = vec![u32::MAX; grid_len];
+    for (i, n) in pre.nodes.iter().enumerate().skip(1) {
+        let p = usize::from(n.pedal).min(grid_len - 1);
+        if first[p] == u32::MAX {
+            first[p] = i as u32;
+        }
+        last[p] = i as u32;
+    }
+    let mut v: Vec<u32> = first
+        .into_iter()
+        .chain(last)
+        .filter(|&i| i != u32::MAX)
+        .collect();
+    v.dedup();
+    v
+}
+
 fn pedal_path(pre: &PreSet<'_>, mut i: u32, g: &[f64]) -> Vec<f64> {
     let mut v = Vec::new();
     while i != u32::MAX && i != 0 {
@@ -488,8 +520,57 @@ fn pedal_path(pre: &PreSet<'_>, mut i: u32, g: &[f64]) -> Vec<f64> {
     v
 }
 
-/// Searches one fault (or a pair: the second injected on top of the first at the same
-/// instant is not what `double` means; pairs are handled by the caller).
+/// Breaks `inj` into a vehicle whose plate and driver are as given, with `active` already
+/// broken: what the fault captures, and the plate (a stuck actuator stops it).
+fn break_into(
+    model: &Model,
+    inj: Injection,
+    now: Time,
+    pedal: f64,
+    plate: PlantState,
+    active: &[ActiveFault],
+) -> (ActiveFault, PlantState) {
+    let mut positions = vec![0.0; model.sensors.len()];
+    if let Some(d) = model.driver {
+        positions[d] = pedal;
+    }
+    positions[model.feedback] = plate.position;
+    let af = ActiveFault::capture(model, inj, now, &positions, plate.position, active);
+    let mut plate = plate;
+    let mut list = active.to_vec();
+    list.push(af);
+    if crate::faults::actuator_condition(&list).stuck_at.is_some() {
+        plate.velocity = 0.0;
+    }
+    (af, plate)
+}
+
+/// Visited joint states with the requirement timers each was reached with (see [`admit`]).
+pub type VisitedTimers = std::collections::HashMap<u128, Timers, BuildHasherDefault<PassThrough>>;
+
+/// Records a state in the visited set. Its requirement timers take part by dominance rather
+/// than in the key: a state seen before with timers at least as far on (closer to a
+/// violation) covers the new one, which is dropped (`None`). Otherwise the stored timers
+/// become the larger of the two in each, and the state goes on with them: an
+/// over-approximation, on the side of finding violations (each is confirmed by an exact replay
+/// before it is reported).
+fn admit(visited: &mut VisitedTimers, k: u128, t: Timers) -> Option<Timers> {
+    match visited.get_mut(&k) {
+        Some(old) if old.excess >= t.excess && old.released >= t.released => None,
+        Some(old) => {
+            old.excess = old.excess.max(t.excess);
+            old.released = old.released.max(t.released);
+            Some(*old)
+        }
+        None => {
+            visited.insert(k, t);
+            Some(t)
+        }
+    }
+}
+
+/// Searches one fault, or a pair: the first of a pair is injected into every fault-free
+/// state, the second arrives at a later step the search chooses.
 pub fn search_fault<'v>(
     vehicle: &'v Vehicle,
     pre: &PreSet<'v>,
@@ -527,77 +608,105 @@ pub fn search_fault<'v>(
             _ => None,
         })
         .fold(1, |a, b| a * b / gcd(a, b));
+    let cone = Cone::new(model);
 
     let mut res = FaultResult {
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         ..FaultResult::default()
     };
-    // Visited states with the longest release time each was reached with (see `pre_fault`).
-    let mut visited: std::collections::HashMap<u128, u16, BuildHasherDefault<PassThrough>> =
+    let mut visited = VisitedTimers::default();
+    // Verdicts of the lone futures of vehicles the driver no longer steers (see `Tail`).
+    let mut tails: std::collections::HashMap<u128, bool, BuildHasherDefault<PassThrough>> =
         Default::default();
     let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored node
     let mut frontier: Vec<Node> = Vec::new();
-    // The active faults of each root, captured at its injection instant.
-    let mut root_faults: Vec<Vec<crate::faults::ActiveFault>> = Vec::new();
+    // The active fault lists in use, each once (most roots share theirs), and what each
+    // captured, quantised for the key.
+    let mut root_faults: Vec<Vec<ActiveFault>> = Vec::new();
+    let mut captured: Vec<Vec<i32>> = Vec::new();
+    let mut stuck_lists: Vec<bool> = Vec::new();
+    let capture_key = |list: &[ActiveFault]| -> Vec<i32> {
+        // Volts for a stuck track, percent for a stuck plate: both at the resolution.
+        list.iter()
+            .map(|a| quantise(a.captured, cfg.resolution / 25.0))
+            .collect()
+    };
     let mut buf = Vec::with_capacity(512);
+    let mut cache = ConeCache::default();
     let mut monitor_seen = vec![false; model.faults.len()];
     let mut end_modes = vec![false; model.modes.len()];
     let mut found = vec![false; reqs.len()];
     let mut tries = vec![0usize; reqs.len()];
 
-    let key = |n: &Node, buf: &mut Vec<u8>| {
+    // The joint state: the faulty controller's memory within its cone of influence
+    // (continuous parts quantised), its plate, its fault-free twin exactly (its index in the
+    // fault-free set, itself closed at the resolution), the pedal, what the faults captured,
+    // detection, a pair's progress and an intermittent fault's phase. The requirement timers
+    // take part by dominance (see `admit`).
+    let key = |n: &Node, cache: &mut ConeCache, buf: &mut Vec<u8>, captured: &[Vec<i32>]| {
         buf.clear();
         buf.push(1);
-        n.st.encode(model, cfg.resolution, buf);
+        let (rel, _) = cone.cached(cache, model, &n.st);
+        n.st.encode_relevant(model, cfg.resolution, rel, buf);
         buf.extend_from_slice(&quantise(n.plate.position, cfg.resolution).to_le_bytes());
         buf.extend_from_slice(&quantise(n.plate.velocity, cfg.resolution * 40.0).to_le_bytes());
-        // The twin enters the key through its plate only (opening and speed, quantised): pairing
-        // it exactly multiplies the state space by the fault-free set. Violations found with a
-        // merged twin are confirmed by an exact replay before they are reported.
-        let twin = pre.nodes[n.twin as usize].sys.plate();
-        buf.extend_from_slice(&quantise(twin.position, cfg.resolution).to_le_bytes());
-        buf.extend_from_slice(&quantise(twin.velocity, cfg.resolution * 40.0).to_le_bytes());
+        if cfg.exact_twin {
+            buf.extend_from_slice(&n.twin.to_le_bytes());
+        } else {
+            // The twin by its plate alone (opening and speed, quantised): far fewer states,
+            // but two twins that differ elsewhere merge, so the absence of a violation is
+            // approximate. Violations are exact either way: each is confirmed by a replay.
+            let twin = pre.nodes[n.twin as usize].sys.plate();
+            buf.extend_from_slice(&quantise(twin.position, cfg.resolution).to_le_bytes());
+            buf.extend_from_slice(&quantise(twin.velocity, cfg.resolution * 40.0).to_le_bytes());
+        }
         buf.push(n.pedal);
-        buf.extend_from_slice(&n.timers.excess.to_le_bytes());
+        for c in &captured[n.faults as usize] {
+            buf.extend_from_slice(&c.to_le_bytes());
+        }
         buf.push(u8::from(n.detected) | (u8::from(n.second_in) << 1));
         buf.extend_from_slice(&((n.since) % cycle).to_le_bytes());
         digest(buf)
     };
 
-    // Roots: the fault injected into fault-free states. Fault-free states that agree at the
-    // injection resolution (coarser than the search's) share one root: the search then goes
-    // deep from a few hundred instants rather than shallow from tens of thousands.
-    let mut roots_seen = Visited::default();
+    // Roots: the fault injected into every fault-free state, i.e. at every injection instant
+    // the fault-free set tells apart at the resolution.
+    let mut shared: std::collections::HashMap<(u64, u64), u32> = Default::default();
     for (oi, o) in pre.nodes.iter().enumerate() {
-        // What distinguishes an injection instant physically: the pedal, the mode, the faults
-        // set, the plate's position and direction of travel.
-        buf.clear();
-        buf.push(o.pedal);
-        buf.extend_from_slice(&(o.sys.mode() as u32).to_le_bytes());
-        for f in 0..model.faults.len() {
-            buf.push(u8::from(o.sys.fault_set(f)));
-        }
-        let plate = o.sys.plate();
-        let r = cfg.injection_resolution.max(cfg.resolution);
-        buf.extend_from_slice(&quantise(plate.position, r).to_le_bytes());
-        buf.push((plate.velocity.signum() as i8) as u8);
-        if !roots_seen.insert(digest(&buf)) {
-            continue;
-        }
-        let mut sys = o.sys.clone();
-        let now = Time(period.0 * u64::from(o.depth));
-        // A pair's second fault arrives later, at a step the search chooses.
-        for i in &inj[..inj.len().min(1)] {
-            sys.inject(*i, now);
-        }
-        let Some(st) = sys.controller_state().cloned() else {
+        let Some(st) = o.sys.controller_state() else {
             // The key-on state before the first step: its first step is explored from the
             // fault-free set's first successors instead.
             continue;
         };
+        let now = Time(period.0 * u64::from(o.depth));
+        // A pair's second fault arrives later, at a step the search chooses.
+        let (af, plate) = break_into(
+            model,
+            inj[0],
+            now,
+            g[usize::from(o.pedal)],
+            o.sys.plate(),
+            o.sys.active_faults(),
+        );
+        let faults = {
+            // What a fault captures, and for an intermittent one its phase's origin, is all
+            // that tells two roots' lists apart (the fault-free set has no fault active).
+            let phase = if cycle > 1 { af.since.0 } else { 0 };
+            let tag = (af.captured.to_bits(), phase);
+            let next = root_faults.len() as u32;
+            let id = *shared.entry(tag).or_insert(next);
+            if id == next {
+                let mut list = o.sys.active_faults().to_vec();
+                list.push(af);
+                captured.push(capture_key(&list));
+                stuck_lists.push(crate::faults::actuator_condition(&list).stuck_at.is_some());
+                root_faults.push(list);
+            }
+            id
+        };
         let n = Node {
-            st,
-            plate: sys.plate(),
+            st: st.clone(),
+            plate,
             twin: oi as u32,
             pedal: o.pedal,
             timers: Timers {
@@ -606,21 +715,27 @@ pub fn search_fault<'v>(
             },
             since: 0,
             step: o.depth,
-            origin: root_faults.len() as u32,
+            origin: oi as u32,
             detected: false,
-            faults: root_faults.len() as u32,
+            faults,
             second_in: inj.len() < 2,
         };
-        let k = key(&n, &mut buf);
-        if visited.insert(k, n.timers.released).is_none() {
+        let k = key(&n, &mut cache, &mut buf, &captured);
+        if admit(&mut visited, k, n.timers).is_some() {
             arena.push((u32::MAX, n.pedal, oi as u32));
-            root_faults.push(sys.active_faults().to_vec());
             frontier.push(n);
         }
     }
-    let root_ids: Vec<u32> = arena.iter().map(|&(_, _, o)| o).collect();
+    res.roots = frontier.len();
     probe(
-        vehicle, pre, &root_ids, inj, cfg, reqs, &mut found, &mut res,
+        vehicle,
+        pre,
+        &probe_roots(pre, g.len()),
+        inj,
+        cfg,
+        reqs,
+        &mut found,
+        &mut res,
     );
     let mut acts = Vec::new();
     let mut choices: Vec<(usize, u8, bool)> = Vec::new();
@@ -629,14 +744,24 @@ pub fn search_fault<'v>(
         pre.nodes[0].sys.sample().clone(),
         crate::controller::Outputs::default(),
     );
+    let mut st = frontier
+        .first()
+        .map(|n| n.st.clone())
+        .unwrap_or_else(|| vehicle.ctl.power_up(&scratch.0));
     let mut next_frontier = Vec::new();
     // Arena index of each frontier node.
     let mut frontier_ids: Vec<u32> = (0..frontier.len() as u32).collect();
     let mut next_ids = Vec::new();
-    while !frontier.is_empty() {
+    // Every requirement violated and confirmed: the verdicts are final, the search ends.
+    let all_found = |found: &[bool]| !found.is_empty() && found.iter().all(|&f| f);
+    'search: while !frontier.is_empty() {
         next_frontier.clear();
         next_ids.clear();
         for (fi, node) in frontier.iter().enumerate() {
+            if all_found(&found) {
+                res.settled_early = true;
+                break 'search;
+            }
             let my_id = frontier_ids[fi];
             if node.since >= horizon {
                 end_modes[node.st.mode()] = true;
@@ -657,27 +782,26 @@ pub fn search_fault<'v>(
                 }
             }
             for &(ai, a, inject_b) in &choices {
-                let mut st = node.st.clone();
+                st.clone_from(&node.st);
                 let mut plate = node.plate;
                 let mut faults_now = node.faults;
                 if inject_b {
                     // The second fault arrives at this step's start, before the pedal moves,
                     // as a script's `break` line before its `pedal` line does.
-                    if let Some(d) = model.driver {
-                        positions[d] = g[usize::from(node.pedal)];
-                    }
-                    positions[model.feedback] = plate.position;
-                    let mut list = root_faults[node.faults as usize].clone();
-                    let b = crate::faults::ActiveFault::capture(
+                    let (b, p) = break_into(
                         model,
                         inj[1],
                         now,
-                        &positions,
-                        plate.position,
-                        &list,
+                        g[usize::from(node.pedal)],
+                        plate,
+                        &root_faults[node.faults as usize],
                     );
+                    plate = p;
+                    let mut list = root_faults[node.faults as usize].clone();
                     list.push(b);
                     faults_now = root_faults.len() as u32;
+                    captured.push(capture_key(&list));
+                    stuck_lists.push(crate::faults::actuator_condition(&list).stuck_at.is_some());
                     root_faults.push(list);
                 }
                 if let Some(d) = model.driver {
@@ -811,8 +935,65 @@ pub fn search_fault<'v>(
                 } else {
                     0
                 };
-                let child = Node {
-                    st,
+                // A faulty vehicle that the driver can no longer steer (no pedal track in its
+                // cone of influence) has one future, whatever the driver does: follow it alone
+                // and, if no open requirement can be broken by it against the worst twin (closed,
+                // the driver released), the branch is done. A stuck plate is constant.
+                if node.second_in {
+                    let done = if stuck_lists[faults_now as usize] {
+                        !constant_can_violate(model, reqs, &found, open)
+                    } else if cone.cached(&mut cache, model, &st).1 {
+                        false
+                    } else {
+                        buf.clear();
+                        let (rel, _) = cone.cached(&mut cache, model, &st);
+                        st.encode_relevant(model, cfg.resolution, rel, &mut buf);
+                        buf.extend_from_slice(
+                            &quantise(plate.position, cfg.resolution).to_le_bytes(),
+                        );
+                        buf.extend_from_slice(
+                            &quantise(plate.velocity, cfg.resolution * 40.0).to_le_bytes(),
+                        );
+                        for c in &captured[faults_now as usize] {
+                            buf.extend_from_slice(&c.to_le_bytes());
+                        }
+                        buf.extend_from_slice(&(since % cycle).to_le_bytes());
+                        buf.extend_from_slice(&timers.excess.to_le_bytes());
+                        buf.extend_from_slice(&timers.released.to_le_bytes());
+                        buf.extend(found.iter().map(|&f| u8::from(f)));
+                        let k = digest(&buf);
+                        match tails.get(&k) {
+                            Some(&d) => d,
+                            None => {
+                                let tail = Tail {
+                                    vehicle,
+                                    cone: &cone,
+                                    reqs,
+                                    found: &found,
+                                    active: &root_faults[faults_now as usize],
+                                    steps: horizon,
+                                };
+                                let d = tail.harmless(
+                                    &st,
+                                    plate,
+                                    step,
+                                    timers,
+                                    &mut scratch,
+                                    &mut cache,
+                                );
+                                tails.insert(k, d);
+                                d
+                            }
+                        }
+                    };
+                    if done {
+                        res.settled += 1;
+                        end_modes[st.mode()] = true;
+                        continue;
+                    }
+                }
+                let mut child = Node {
+                    st: st.clone(),
                     plate,
                     twin: twin_next,
                     pedal: a,
@@ -824,18 +1005,15 @@ pub fn search_fault<'v>(
                     faults: faults_now,
                     second_in: node.second_in || inject_b,
                 };
-                let k = key(&child, &mut buf);
-                match visited.get_mut(&k) {
-                    Some(r) if *r >= child.timers.released => continue,
-                    Some(r) => *r = child.timers.released,
-                    None => {
-                        visited.insert(k, child.timers.released);
-                    }
-                }
+                let k = key(&child, &mut cache, &mut buf, &captured);
+                let Some(t) = admit(&mut visited, k, child.timers) else {
+                    continue;
+                };
                 if arena.len() >= cfg.max_states {
                     res.truncated = true;
                     continue;
                 }
+                child.timers = t;
                 any_new = true;
                 arena.push((my_id, a | if inject_b { 0x80 } else { 0 }, node.origin));
                 next_ids.push((arena.len() - 1) as u32);
@@ -849,11 +1027,28 @@ pub fn search_fault<'v>(
         std::mem::swap(&mut frontier_ids, &mut next_ids);
     }
     res.states = arena.len();
-    res.roots = root_faults.len();
     res.monitors = (0..model.faults.len())
         .filter(|&f| monitor_seen[f])
         .collect();
     res.end_modes = (0..model.modes.len()).filter(|&m| end_modes[m]).collect();
+    // The confirmed violations are states too (a probe's, or one the search stopped short
+    // of storing): their openings count in the figures.
+    for v in &res.violations {
+        match reqs[v.requirement] {
+            Req::Excess { limit, steps } => {
+                res.worst_excess = res.worst_excess.max(v.opening - (v.bound - limit));
+                let d = Time(period.0 * (u64::from(steps) + 1));
+                res.worst_excess_duration = res.worst_excess_duration.max(d);
+            }
+            Req::Never { .. } => {
+                res.worst_opening_below_ceiling = res.worst_opening_below_ceiling.max(v.opening);
+            }
+            Req::Idle { steps, .. } => {
+                let d = Time(period.0 * u64::from(steps));
+                res.worst_idle_after_release = res.worst_idle_after_release.max(d);
+            }
+        }
+    }
     if res.worst_opening_below_ceiling == f64::NEG_INFINITY {
         res.worst_opening_below_ceiling = 0.0;
     }
@@ -861,6 +1056,147 @@ pub fn search_fault<'v>(
     res
 }
 
+/// The one future of a faulty vehicle the driver no longer steers.
+struct Tail<'a> {
+    vehicle: &'a Vehicle,
+    cone: &'a Cone,
+    reqs: &'a [Req],
+    found: &'a [bool],
+    active: &'a [ActiveFault],
+    /// How far to follow it (the whole horizon: at least what is left of it).
+    steps: u32,
+}
+
+impl Tail<'_> {
+    /// Whether following the vehicle alone from `st`, `plate` after step `step` breaks no
+    /// requirement not yet found violated, against the worst fault-free twin: closed (so the
+    /// excess is measured from the springs' default) with the driver released from now on.
+    /// `false` as soon as the driver re-enters the cone (a mode change can bring the pedal
+    /// back), so the search then goes on as usual.
+    fn harmless(
+        &self,
+        st: &crate::controller::State,
+        plate: PlantState,
+        step: u32,
+        timers: Timers,
+        scratch: &mut (crate::controller::Sample, crate::controller::Outputs),
+        cache: &mut ConeCache,
+    ) -> bool {
+        let model = self.vehicle.ctl.model();
+        let period = model.period;
+        let mut st = st.clone();
+        let mut plate = plate;
+        let mut positions = vec![0.0; model.sensors.len()];
+        let mut excess = u32::from(timers.excess);
+        let released = u32::from(timers.released);
+        for k in 0..self.steps {
+            let now = Time(period.0 * (u64::from(step) + u64::from(k)));
+            let before = plate;
+            crate::sim::system::period(
+                self.vehicle,
+                &mut st,
+                &mut plate,
+                &mut positions,
+                self.active,
+                now,
+                period,
+                scratch,
+            );
+            if self.cone.cached(cache, model, &st).1 {
+                return false;
+            }
+            let open = plate.position;
+            for (r, &f) in self.reqs.iter().zip(self.found) {
+                if f {
+                    continue;
+                }
+                let broken = match *r {
+                    Req::Excess { limit, steps } => {
+                        if open - model.actuator.default > limit {
+                            excess += 1;
+                            excess > steps
+                        } else {
+                            excess = 0;
+                            false
+                        }
+                    }
+                    Req::Never { above, .. } => open > above,
+                    Req::Idle { idle, steps } => released + k + 1 >= steps && open > idle,
+                };
+                if broken {
+                    return false;
+                }
+            }
+            // Settled for good (drive off or held, nothing in the cone moving): the rest of
+            // the future repeats this opening.
+            if plate == before && plate.velocity == 0.0 && excess == 0 && model.driver.is_some() {
+                let mut next = st.clone();
+                let mut p2 = plate;
+                crate::sim::system::period(
+                    self.vehicle,
+                    &mut next,
+                    &mut p2,
+                    &mut positions,
+                    self.active,
+                    Time(now.0 + period.0),
+                    period,
+                    scratch,
+                );
+                let (rel, _) = self.cone.cached(cache, model, &st);
+                if p2 == plate && next.same_relevant(&st, rel) && !self.time_varying() {
+                    return !constant_can_violate(model, self.reqs, self.found, open);
+                }
+            }
+        }
+        true
+    }
+
+    /// An intermittent fault changes the inputs with time, so no state repeats for good.
+    fn time_varying(&self) -> bool {
+        self.active.iter().any(|a| {
+            matches!(
+                a.injection,
+                Injection::Track {
+                    fault: TrackFault::Intermittent { .. },
+                    ..
+                }
+            )
+        })
+    }
+}
+
+/// Whether an opening held for good could still break a requirement not yet found violated,
+/// for some fault-free opening and driver: the twin may close to 0 % and the driver release.
+fn constant_can_violate(model: &Model, reqs: &[Req], found: &[bool], open: f64) -> bool {
+    reqs.iter().zip(found).any(|(r, &f)| {
+        !f && match *r {
+            Req::Excess { limit, .. } => open - model.actuator.default > limit,
+            Req::Never { above, .. } => open > above,
+            Req::Idle { idle, .. } => open > idle,
+        }
+    })
+}
+
 fn gcd(a: u32, b: u32) -> u32 {
     if b == 0 { a.max(1) } else { gcd(b, a % b) }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn timers_take_part_by_dominance() {
+        let mut v = VisitedTimers::default();
+        let t = |excess, released| Timers { excess, released };
+        assert_eq!(admit(&mut v, 7, t(3, 10)), Some(t(3, 10)));
+        // Covered: no further on in either timer.
+        assert_eq!(admit(&mut v, 7, t(3, 10)), None);
+        assert_eq!(admit(&mut v, 7, t(0, 4)), None);
+        // Further on in one: goes on with the larger of each.
+        assert_eq!(admit(&mut v, 7, t(5, 2)), Some(t(5, 10)));
+        assert_eq!(admit(&mut v, 7, t(4, 9)), None);
+        // Another key is another state.
+        assert_eq!(admit(&mut v, 8, t(0, 0)), Some(t(0, 0)));
+    }
 }

@@ -50,9 +50,22 @@ const FLAWED: [(&str, &str); 3] = [
 
 #[test]
 fn flawed_demos_fail_with_counterexamples_that_replay() {
+    flawed_demos_replay(false);
+}
+
+/// The same with the twin paired exactly.
+#[test]
+fn flawed_demos_fail_with_counterexamples_that_replay_with_an_exact_twin() {
+    flawed_demos_replay(true);
+}
+
+fn flawed_demos_replay(exact_twin: bool) {
     for (policy, only) in FLAWED {
         let m = load(policy);
-        let cfg = focused(only);
+        let cfg = Config {
+            exact_twin,
+            ..focused(only)
+        };
         let proof = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
         assert!(
             proof.violated(),
@@ -177,6 +190,56 @@ fn random_campaign_finds_nothing_the_prover_missed() {
         sampled_hits > 0,
         "the random campaign found no violation on the flawed demos"
     );
+}
+
+/// Sampling against a verdict that holds: a feedback track open on the reference policy is
+/// caught by its range check, the drive goes off and the springs close the plate. The
+/// prover, with the twin paired exactly, says every requirement holds (the search closed
+/// without hitting a bound); seeded random drives with the fault at random instants, replayed
+/// exactly, find no violation either.
+#[test]
+fn a_fault_that_prove_passes_survives_a_random_campaign() {
+    let m = load("scenarios/van/van_throttle.limp");
+    let cfg = Config {
+        exact_twin: true,
+        ..focused("throttle.a open")
+    };
+    let proof = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+    assert_eq!(proof.rows.len(), 1);
+    let row = &proof.rows[0];
+    assert!(!row.result.truncated, "the search must close");
+    assert!(
+        row.result.violations.is_empty(),
+        "{:?}",
+        row.result.violations
+    );
+    assert!(!proof.violated() && !proof.inconclusive());
+    let vehicle = Vehicle::new(&m).expect("plant derives");
+    let grid = search::grid(&cfg);
+    let horizon = (cfg.horizon.0 / m.period.0) as usize;
+    let mut rng = Rng(0x0dd_ba11_5eed_0002);
+    for _ in 0..40 {
+        let inject = 1 + rng.below(60) as usize;
+        let mut last = 0usize;
+        let mut pedal = Vec::new();
+        for _ in 0..inject + horizon {
+            let step = rng.below(3) as i64 - 1;
+            last = (last as i64 + step).clamp(0, grid.len() as i64 - 1) as usize;
+            pedal.push(grid[last]);
+        }
+        let hits = search::replay_check(
+            &vehicle,
+            &row.faults,
+            &pedal,
+            inject as u32,
+            None,
+            &proof.requirements,
+        );
+        assert!(
+            hits.iter().all(Option::is_none),
+            "sampling broke a requirement the prover says holds: {hits:?}"
+        );
+    }
 }
 
 /// A pair at independent instants, as the double-fault search reports it: the closing spring
