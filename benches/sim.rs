@@ -173,40 +173,32 @@ fn main() {
         plant_rate,
         1e9 / plant_rate
     );
-    // One whole controller period's worth of plant in one call, for comparison.
+    // One whole controller period's worth of plant in one call, for comparison: sub-stepped
+    // one by one, then through the closed-form jumps the engine and the prover use.
     let per_period = (model.period.0 / params.substep().0.max(1)).max(1);
-    let (calls, wall) = timed(|| {
-        for _ in 0..20 {
-            k = k.wrapping_add(1);
-            let duty = if (k / 10).is_multiple_of(2) {
-                60.0
-            } else {
-                -40.0
-            };
-            s = plant::advance(&params, s, duty, true, &healthy, model.period);
-        }
-        black_box(s);
-    });
-    let period_rate = calls as f64 * 20.0 * per_period as f64 / wall;
+    let plate = Plate::new(params.clone());
+    let mut per_call = |step: &dyn Fn(PlantState, f64) -> PlantState| {
+        let (calls, wall) = timed(|| {
+            for _ in 0..20 {
+                k = k.wrapping_add(1);
+                let duty = if (k / 10).is_multiple_of(2) {
+                    60.0
+                } else {
+                    -40.0
+                };
+                s = step(s, duty);
+            }
+            black_box(s);
+        });
+        calls as f64 * 20.0 * per_period as f64 / wall
+    };
+    let period_rate =
+        per_call(&|s, duty| plant::advance(&params, s, duty, true, &healthy, model.period));
+    let jump_rate = per_call(&|s, duty| plate.advance(s, duty, true, &healthy, model.period));
     println!(
         "plant, period per call:  {:>14.0} sub-steps/s  ({per_period} sub-steps a call, one by one)",
         period_rate
     );
-    // The same calls through the closed-form jumps the engine and the prover use.
-    let plate = Plate::new(params.clone());
-    let (calls, wall) = timed(|| {
-        for _ in 0..20 {
-            k = k.wrapping_add(1);
-            let duty = if (k / 10).is_multiple_of(2) {
-                60.0
-            } else {
-                -40.0
-            };
-            s = plate.advance(s, duty, true, &healthy, model.period);
-        }
-        black_box(s);
-    });
-    let jump_rate = calls as f64 * 20.0 * per_period as f64 / wall;
     println!(
         "plant, period per call:  {:>14.0} sub-steps/s  (in jumps; {:.1}x one by one)",
         jump_rate,

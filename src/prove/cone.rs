@@ -16,7 +16,11 @@ use crate::controller::{Relevance, State};
 use crate::model::{Demand, Expr, Model, Signal, Term, TrackRef};
 
 /// Cones by mode and latched faults (see [`Cone::cached`]).
-pub type ConeCache = std::collections::HashMap<(usize, u128), (Relevance, bool)>;
+pub type ConeCache = std::collections::HashMap<
+    (usize, u128),
+    (Relevance, bool),
+    std::hash::BuildHasherDefault<super::search::PassThrough>,
+>;
 
 /// Per-model tables for [`Cone::relevance`].
 pub struct Cone {

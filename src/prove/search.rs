@@ -44,7 +44,10 @@ impl Hasher for PassThrough {
         }
     }
     fn write_u128(&mut self, i: u128) {
-        self.0 = (i as u64) ^ ((i >> 64) as u64);
+        self.0 ^= (i as u64) ^ ((i >> 64) as u64);
+    }
+    fn write_usize(&mut self, i: usize) {
+        self.0 = (self.0 ^ i as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15);
     }
 }
 

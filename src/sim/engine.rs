@@ -212,8 +212,9 @@ pub fn run_on(vehicle: &Vehicle, script: &Script, opts: RunOptions) -> Trace {
             .min(check)
             .min(length);
         // Advance the plate sub-step by sub-step, watching the opening windows on each. With
-        // no undecided window open before `until`, one call integrates the same sub-steps in
-        // the same order (bit for bit), without the per-call overhead.
+        // no undecided window open before `until`, one call integrates the same sub-steps,
+        // in closed-form jumps where the plate has no event (the same plate up to rounding;
+        // see `plant::Plate`).
         let step = sys.substep();
         if watching(script, &watch, now, until) {
             let mut t = now;
