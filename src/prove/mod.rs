@@ -184,6 +184,12 @@ impl Row {
             .join(" + ")
     }
 
+    /// Whether the bound left some requirement of this row without a verdict (a search that
+    /// hit it after violating every requirement is decided).
+    pub fn undecided(&self, p: &Proof) -> bool {
+        (0..p.requirements.len()).any(|ri| self.verdict(ri) == Verdict::Inconclusive)
+    }
+
     /// The verdict on requirement `ri`.
     pub fn verdict(&self, ri: usize) -> Verdict {
         if self.result.violations.iter().any(|v| v.requirement == ri) {
@@ -218,7 +224,7 @@ impl Proof {
     }
 
     pub fn inconclusive(&self) -> bool {
-        self.pre_truncated || self.rows.iter().any(|r| r.result.truncated)
+        self.pre_truncated || self.rows.iter().any(|r| r.undecided(self))
     }
 }
 

@@ -281,7 +281,7 @@ pub fn summary(m: &Model, p: &Proof) -> String {
             p.config.max_states
         );
     }
-    let truncated = p.rows.iter().filter(|r| r.result.truncated).count();
+    let truncated = p.rows.iter().filter(|r| r.undecided(p)).count();
     if truncated > 0 {
         let _ = writeln!(
             o,
@@ -330,7 +330,10 @@ pub fn json(m: &Model, p: &Proof) -> String {
                 "worst_opening_below_ceiling": crate::sim::trace::round6(r.worst_opening_below_ceiling),
                 "worst_release_to_idle_ms": r.worst_idle_after_release.as_ms_f64(),
                 "states": r.states,
+                "injection_instants": r.roots,
                 "truncated": r.truncated,
+                "settled_early": r.settled_early,
+                "settled_branches": r.settled,
                 "verdicts": verdicts(p, row),
                 "violations": r.violations.iter().map(|v| serde_json::json!({
                     "requirement": p.requirements[v.requirement].text(m),
@@ -349,6 +352,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
             "horizon_ms": p.config.horizon.as_ms_f64(),
             "max_states": p.config.max_states,
             "free_pedal": p.config.free_pedal,
+            "exact_twin": p.config.exact_twin,
         },
         "requirements": p.requirements.iter().map(|r| r.text(m)).collect::<Vec<_>>(),
         "pre_fault_states": p.pre_states,
