@@ -15,19 +15,42 @@ use crate::time::Time;
 use std::collections::HashSet;
 use std::hash::{BuildHasherDefault, Hasher};
 
-/// The visited set stores 128-bit digests of state encodings (two FNV-1a streams). With the
-/// tens of millions of states a search can hold, the chance that two different states share a
-/// digest is far below 1e-20.
+/// The visited set stores 128-bit digests of state encodings: two independent 64-bit streams,
+/// each folding the encoding in 8-byte words through a bijective multiply-xorshift mix (so
+/// encodings of one length that differ in a single word never collide), then a final
+/// avalanche. With the tens of millions of states a search can hold, the chance that two
+/// different states share a digest is far below 1e-20.
 pub fn digest(bytes: &[u8]) -> u128 {
-    let mut a: u64 = 0xcbf2_9ce4_8422_2325;
-    let mut b: u64 = 0x6c62_272e_07bb_0142;
-    for &x in bytes {
-        a = (a ^ u64::from(x)).wrapping_mul(0x0000_0100_0000_01b3);
-        b = (b ^ u64::from(x))
-            .wrapping_mul(0x0000_0100_0000_01b3)
-            .rotate_left(5);
+    const K1: u64 = 0x9e37_79b9_7f4a_7c15;
+    const K2: u64 = 0xbf58_476d_1ce4_e5b9;
+    let len = bytes.len() as u64;
+    let mut a: u64 = 0x243f_6a88_85a3_08d3 ^ len;
+    let mut b: u64 = 0x1319_8a2e_0370_7344 ^ len.rotate_left(32);
+    let mut chunks = bytes.chunks_exact(8);
+    let mut fold = |w: u64| {
+        a = (a ^ w).wrapping_mul(K1);
+        a ^= a >> 29;
+        b = (b ^ w.rotate_left(23)).wrapping_mul(K2);
+        b ^= b >> 31;
+    };
+    for c in chunks.by_ref() {
+        let mut w = [0u8; 8];
+        w.copy_from_slice(c);
+        fold(u64::from_le_bytes(w));
     }
-    (u128::from(a) << 64) | u128::from(b)
+    let rest = chunks.remainder();
+    if !rest.is_empty() {
+        let mut w = [0u8; 8];
+        w[..rest.len()].copy_from_slice(rest);
+        fold(u64::from_le_bytes(w));
+    }
+    // splitmix64's finaliser on each stream.
+    let fin = |mut z: u64| {
+        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+        z ^ (z >> 31)
+    };
+    (u128::from(fin(a)) << 64) | u128::from(fin(b ^ a.rotate_left(17)))
 }
 
 /// The digests are already well mixed: the set's hasher passes them through.
@@ -747,10 +770,9 @@ pub fn search_fault<'v>(
         pre.nodes[0].sys.sample().clone(),
         crate::controller::Outputs::default(),
     );
-    let mut st = frontier
-        .first()
-        .map(|n| n.st.clone())
-        .unwrap_or_else(|| vehicle.ctl.power_up(&scratch.0));
+    // A spare controller state to step successors in: a successor that is kept takes it
+    // along, one that is dropped gives it back, so only kept states allocate.
+    let mut spare: Option<crate::controller::State> = None;
     let mut next_frontier = Vec::new();
     // Arena index of each frontier node.
     let mut frontier_ids: Vec<u32> = (0..frontier.len() as u32).collect();
@@ -785,7 +807,13 @@ pub fn search_fault<'v>(
                 }
             }
             for &(ai, a, inject_b) in &choices {
-                st.clone_from(&node.st);
+                let mut st = match spare.take() {
+                    Some(mut s) => {
+                        s.clone_from(&node.st);
+                        s
+                    }
+                    None => node.st.clone(),
+                };
                 let mut plate = node.plate;
                 let mut faults_now = node.faults;
                 if inject_b {
@@ -992,11 +1020,12 @@ pub fn search_fault<'v>(
                     if done {
                         res.settled += 1;
                         end_modes[st.mode()] = true;
+                        spare = Some(st);
                         continue;
                     }
                 }
                 let mut child = Node {
-                    st: st.clone(),
+                    st,
                     plate,
                     twin: twin_next,
                     pedal: a,
@@ -1010,10 +1039,12 @@ pub fn search_fault<'v>(
                 };
                 let k = key(&child, &mut cache, &mut buf, &captured);
                 let Some(t) = admit(&mut visited, k, child.timers) else {
+                    spare = Some(child.st);
                     continue;
                 };
                 if arena.len() >= cfg.max_states {
                     res.truncated = true;
+                    spare = Some(child.st);
                     continue;
                 }
                 child.timers = t;
@@ -1187,6 +1218,38 @@ fn gcd(a: u32, b: u32) -> u32 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn digests_tell_encodings_apart() {
+        // Every single-byte change, every truncation and every zero padding of a
+        // state-sized buffer gives a digest of its own (common practice, no source: a
+        // visited-set hash must not merge near-identical keys).
+        let base: Vec<u8> = (0..61u32).map(|i| (i * 37 % 251) as u8).collect();
+        let mut seen = std::collections::HashSet::new();
+        assert!(seen.insert(digest(&base)));
+        for i in 0..base.len() {
+            for bit in 0..8 {
+                let mut v = base.clone();
+                v[i] ^= 1 << bit;
+                assert!(seen.insert(digest(&v)), "byte {i} bit {bit}");
+            }
+        }
+        for n in 0..base.len() {
+            assert!(seen.insert(digest(&base[..n])), "prefix {n}");
+        }
+        for pad in 1..9 {
+            let mut v = base.clone();
+            v.extend(std::iter::repeat_n(0, pad));
+            assert!(seen.insert(digest(&v)), "padding {pad}");
+        }
+        // Both halves change with a one-bit change (the set hashes their xor).
+        let (x, y) = (
+            digest(&base),
+            digest(&[&base[..60], &[base[60] ^ 1]].concat()),
+        );
+        assert_ne!(x >> 64, y >> 64);
+        assert_ne!(x as u64, y as u64);
+    }
 
     #[test]
     fn timers_take_part_by_dominance() {
