@@ -1163,7 +1163,7 @@ impl Tail<'_> {
             }
             // Settled for good (drive off or held, nothing in the cone moving): the rest of
             // the future repeats this opening.
-            if plate == before && plate.velocity == 0.0 && excess == 0 && model.driver.is_some() {
+            if plate == before && plate.velocity == 0.0 && excess == 0 {
                 let mut next = st.clone();
                 let mut p2 = plate;
                 crate::sim::system::period(
