@@ -568,6 +568,28 @@ impl Plate {
         Plate { params, closed }
     }
 
+    /// `dt` (whole sub-steps) in a single closed-form jump, when no event of the plate falls
+    /// inside it: then the position moved monotonically from `s` to the result, so every
+    /// sub-step's position lies between the two. `None` otherwise (the caller sub-steps).
+    pub fn jump(
+        &self,
+        s: PlantState,
+        duty: f64,
+        drive_on: bool,
+        c: &ActuatorCondition,
+        dt: Time,
+    ) -> Option<PlantState> {
+        let h = self.params.substep.0.max(1);
+        if !dt.0.is_multiple_of(h) {
+            return None;
+        }
+        let (x, v, motor, spring_on) = call_inputs(&self.params, s, duty, drive_on, c)?;
+        let (position, velocity) =
+            self.closed
+                .jump(&self.params, x, v, motor, spring_on, dt.0 / h)?;
+        Some(PlantState { position, velocity })
+    }
+
     /// As [`advance`], with runs of sub-steps between the plate's events taken in one
     /// closed-form jump; equal to [`advance`] up to rounding.
     pub fn advance(
@@ -582,20 +604,16 @@ impl Plate {
     }
 }
 
-fn advance_in(
+/// The plate's state and forces for one call: `None` for a stuck plate.
+fn call_inputs(
     p: &PlantParams,
-    closed: Option<&Closed>,
     s: PlantState,
     duty: f64,
     drive_on: bool,
     c: &ActuatorCondition,
-    dt: Time,
-) -> PlantState {
-    if let Some(at) = c.stuck_at {
-        return PlantState {
-            position: at.clamp(0.0, 100.0),
-            velocity: 0.0,
-        };
+) -> Option<(f64, f64, f64, bool)> {
+    if c.stuck_at.is_some() {
+        return None;
     }
     let duty = if duty.is_finite() {
         duty.clamp(-100.0, 100.0)
@@ -612,7 +630,6 @@ fn advance_in(
     } else {
         0.0
     };
-    let spring_on = !c.spring_broken;
     let x = if s.position.is_finite() {
         s.position.clamp(0.0, 100.0)
     } else {
@@ -622,6 +639,24 @@ fn advance_in(
         s.velocity
     } else {
         0.0
+    };
+    Some((x, v, motor, !c.spring_broken))
+}
+
+fn advance_in(
+    p: &PlantParams,
+    closed: Option<&Closed>,
+    s: PlantState,
+    duty: f64,
+    drive_on: bool,
+    c: &ActuatorCondition,
+    dt: Time,
+) -> PlantState {
+    let Some((x, v, motor, spring_on)) = call_inputs(p, s, duty, drive_on, c) else {
+        return PlantState {
+            position: c.stuck_at.unwrap_or(0.0).clamp(0.0, 100.0),
+            velocity: 0.0,
+        };
     };
     let full = dt.0 / p.substep.0.max(1);
     let run = Run {
@@ -1102,6 +1137,49 @@ mod tests {
         let spring = time_to_reach(&p, 0.0, 20.0, 0.0, false, 1.0).expect("returns");
         assert!((open - 0.120).abs() < 0.05 * 0.120, "open {open}");
         assert!((spring - 0.060).abs() < 0.05 * 0.060, "spring {spring}");
+    }
+
+    #[test]
+    fn a_whole_jump_is_monotone_and_agrees_with_sub_steps() {
+        // What the engine relies on when it judges an opening window at a jump's ends only:
+        // every sub-step's position lies between them.
+        let p = PlantParams::derive(&reference()).expect("derives");
+        let fast = Plate::new(p.clone());
+        let h = ActuatorCondition::HEALTHY;
+        let mut taken = 0;
+        for i in 0..400u32 {
+            let s = PlantState {
+                position: 10.0 + f64::from(i % 80),
+                velocity: f64::from(i % 7) * 150.0 - 450.0,
+            };
+            let duty = f64::from(i % 11) * 20.0 - 100.0;
+            let dt = Time(DEFAULT_SUBSTEP.0 * u64::from(5 + i % 40));
+            let Some(end) = fast.jump(s, duty, true, &h, dt) else {
+                continue;
+            };
+            taken += 1;
+            let (lo, hi) = (s.position.min(end.position), s.position.max(end.position));
+            let mut x = s;
+            for _ in 0..dt.0 / DEFAULT_SUBSTEP.0 {
+                x = advance(&p, x, duty, true, &h, DEFAULT_SUBSTEP);
+                assert!(
+                    x.position >= lo - 1e-9 && x.position <= hi + 1e-9,
+                    "{s:?} {duty}"
+                );
+            }
+            assert!((x.position - end.position).abs() < 1e-9, "{x:?} vs {end:?}");
+        }
+        assert!(taken > 50, "only {taken} jumps taken");
+        // Not whole sub-steps, or a plate at rest: no jump.
+        let moving = PlantState {
+            position: 50.0,
+            velocity: 100.0,
+        };
+        assert_eq!(fast.jump(moving, 10.0, true, &h, Time(150_000)), None);
+        assert_eq!(
+            fast.jump(PlantState::at_rest(50.0), 10.0, true, &h, Time::from_ms(5)),
+            None
+        );
     }
 
     #[test]

@@ -221,6 +221,28 @@ impl<'v> System<'v> {
             .advance(self.plate, self.out.duty, on, &self.condition, dt);
     }
 
+    /// Advances the plate by `dt` in one closed-form jump if no event of the plate falls
+    /// inside it (see [`crate::plant::Plate::jump`]); says whether it did. The position then
+    /// moved monotonically, so every sub-step in between lay between the two ends.
+    pub fn jump_plant(&mut self, dt: Time) -> bool {
+        let on = self.key && self.out.drive_on;
+        match self
+            .params
+            .jump(self.plate, self.out.duty, on, &self.condition, dt)
+        {
+            Some(p) => {
+                self.plate = p;
+                true
+            }
+            None => false,
+        }
+    }
+
+    /// Puts the plate back where a failed look-ahead found it.
+    pub fn set_plate(&mut self, plate: crate::plant::PlantState) {
+        self.plate = plate;
+    }
+
     pub fn substep(&self) -> Time {
         self.params.params.substep()
     }
