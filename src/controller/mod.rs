@@ -228,24 +228,48 @@ impl State {
     /// track's mean slope (volts per percent), so one quantum means the same travel on every
     /// track. A `quantum` that is not positive and finite encodes the continuous parts exactly.
     pub fn encode(&self, model: &Model, quantum: f64, out: &mut Vec<u8>) {
+        self.encode_where(model, quantum, None, out);
+    }
+
+    /// The one encoding: every part, or only those `rel` marks (the mode always).
+    fn encode_where(
+        &self,
+        model: &Model,
+        quantum: f64,
+        rel: Option<&Relevance>,
+        out: &mut Vec<u8>,
+    ) {
+        let keep = |marks: fn(&Relevance) -> &[bool], i: usize| {
+            rel.is_none_or(|r| marks(r).get(i).copied().unwrap_or(false))
+        };
         put_varint(out, self.mode as u64);
-        for f in &self.faults {
-            out.push(u8::from(f.set) | (u8::from(f.pending) << 1));
-            put_varint(out, u64::from(f.count));
-            put_varint(out, u64::from(f.heal));
+        for (i, f) in self.faults.iter().enumerate() {
+            if keep(|r| &r.faults, i) {
+                out.push(u8::from(f.set) | (u8::from(f.pending) << 1));
+                put_varint(out, u64::from(f.count));
+                put_varint(out, u64::from(f.heal));
+            }
         }
-        for &d in &self.dwell {
-            put_varint(out, u64::from(d));
+        for (i, &d) in self.dwell.iter().enumerate() {
+            if keep(|r| &r.transitions, i) {
+                put_varint(out, u64::from(d));
+            }
         }
         let slopes = model
             .sensors
             .iter()
             .flat_map(|s| s.tracks.iter().map(|t| t.mean_slope()));
-        for (&v, slope) in self.volts.iter().zip(slopes) {
-            put_quantised(out, v, quantum * slope.abs());
+        for (i, (&v, slope)) in self.volts.iter().zip(slopes).enumerate() {
+            if keep(|r| &r.tracks, i) {
+                put_quantised(out, v, quantum * slope.abs());
+            }
         }
-        put_quantised(out, self.target, quantum);
-        put_quantised(out, self.integral, quantum);
+        if rel.is_none_or(|r| r.target) {
+            put_quantised(out, self.target, quantum);
+        }
+        if rel.is_none_or(|r| r.integral) {
+            put_quantised(out, self.integral, quantum);
+        }
     }
 }
 
@@ -266,34 +290,7 @@ pub struct Relevance {
 impl State {
     /// As [`State::encode`], with only the parts `rel` marks (the mode always).
     pub fn encode_relevant(&self, model: &Model, quantum: f64, rel: &Relevance, out: &mut Vec<u8>) {
-        put_varint(out, self.mode as u64);
-        for (f, on) in self.faults.iter().zip(&rel.faults) {
-            if *on {
-                out.push(u8::from(f.set) | (u8::from(f.pending) << 1));
-                put_varint(out, u64::from(f.count));
-                put_varint(out, u64::from(f.heal));
-            }
-        }
-        for (&d, on) in self.dwell.iter().zip(&rel.transitions) {
-            if *on {
-                put_varint(out, u64::from(d));
-            }
-        }
-        let slopes = model
-            .sensors
-            .iter()
-            .flat_map(|s| s.tracks.iter().map(|t| t.mean_slope()));
-        for ((&v, slope), on) in self.volts.iter().zip(slopes).zip(&rel.tracks) {
-            if *on {
-                put_quantised(out, v, quantum * slope.abs());
-            }
-        }
-        if rel.target {
-            put_quantised(out, self.target, quantum);
-        }
-        if rel.integral {
-            put_quantised(out, self.integral, quantum);
-        }
+        self.encode_where(model, quantum, Some(rel), out);
     }
 
     /// Whether fault `f` is set and stays set until the next key on.
