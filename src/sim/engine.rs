@@ -252,14 +252,68 @@ pub fn run_on(vehicle: &Vehicle, script: &Script, opts: RunOptions) -> Trace {
 /// Whether an undecided opening window covers some instant strictly between `from` and
 /// `until` (the instants themselves are judged at the top of the sweep).
 fn watching(script: &Script, w: &Watch, from: Time, until: Time) -> bool {
-    script.expectations.iter().enumerate().any(|(i, e)| {
-        w.verdicts[i].is_none()
-            && match e.kind {
-                ExpectKind::OpeningAtMost { from: a, to: b, .. }
-                | ExpectKind::OpeningAtLeast { from: a, to: b, .. } => a < until && b > from,
-                _ => false,
-            }
-    })
+    open_windows(script, w).any(|win| win.from < until && win.to > from)
+}
+
+/// An `expect opening at most|at least X` window.
+#[derive(Clone, Copy, Debug)]
+struct Window {
+    x: f64,
+    from: Time,
+    to: Time,
+    at_most: bool,
+}
+
+impl Window {
+    fn of(kind: &ExpectKind) -> Option<Window> {
+        match *kind {
+            ExpectKind::OpeningAtMost { x, from, to } => Some(Window {
+                x,
+                from,
+                to,
+                at_most: true,
+            }),
+            ExpectKind::OpeningAtLeast { x, from, to } => Some(Window {
+                x,
+                from,
+                to,
+                at_most: false,
+            }),
+            _ => None,
+        }
+    }
+
+    fn covers(&self, t: Time) -> bool {
+        t >= self.from && t <= self.to
+    }
+
+    /// Whether `opening` is outside the bound (beyond a rounding tolerance).
+    fn breaks(&self, opening: f64) -> bool {
+        if self.at_most {
+            opening > self.x + 1e-9
+        } else {
+            opening < self.x - 1e-9
+        }
+    }
+
+    /// Whether `opening` is further out than the extreme `v` seen so far.
+    fn beyond(&self, opening: f64, v: f64) -> bool {
+        if self.at_most {
+            opening > v
+        } else {
+            opening < v
+        }
+    }
+}
+
+/// The opening windows not decided yet.
+fn open_windows<'a>(script: &'a Script, w: &'a Watch) -> impl Iterator<Item = Window> + 'a {
+    script
+        .expectations
+        .iter()
+        .zip(&w.verdicts)
+        .filter(|(_, v)| v.is_none())
+        .filter_map(|(e, _)| Window::of(&e.kind))
 }
 
 /// Applies one script action at instant `now`.
@@ -390,32 +444,19 @@ fn judge_opening(script: &Script, w: &mut Watch, t: Time, opening: f64) {
         if w.verdicts[i].is_some() {
             continue;
         }
-        match e.kind {
-            ExpectKind::OpeningAtMost { x, from, to } if t >= from && t <= to => {
-                if w.extreme[i].is_none_or(|(v, _)| opening > v) {
-                    w.extreme[i] = Some((opening, t));
-                }
-                if opening > x + 1e-9 {
-                    w.verdicts[i] = Some((
-                        false,
-                        t,
-                        format!("the opening reached {opening:.2} % at {} s", secs(t)),
-                    ));
-                }
-            }
-            ExpectKind::OpeningAtLeast { x, from, to } if t >= from && t <= to => {
-                if w.extreme[i].is_none_or(|(v, _)| opening < v) {
-                    w.extreme[i] = Some((opening, t));
-                }
-                if opening < x - 1e-9 {
-                    w.verdicts[i] = Some((
-                        false,
-                        t,
-                        format!("the opening fell to {opening:.2} % at {} s", secs(t)),
-                    ));
-                }
-            }
-            _ => {}
+        let Some(win) = Window::of(&e.kind).filter(|win| win.covers(t)) else {
+            continue;
+        };
+        if w.extreme[i].is_none_or(|(v, _)| win.beyond(opening, v)) {
+            w.extreme[i] = Some((opening, t));
+        }
+        if win.breaks(opening) {
+            let what = if win.at_most { "reached" } else { "fell to" };
+            w.verdicts[i] = Some((
+                false,
+                t,
+                format!("the opening {what} {opening:.2} % at {} s", secs(t)),
+            ));
         }
     }
 }
@@ -423,30 +464,14 @@ fn judge_opening(script: &Script, w: &mut Watch, t: Time, opening: f64) {
 /// Whether an undecided opening window starts or ends strictly between `from` and `until`.
 fn edge_inside(script: &Script, w: &Watch, from: Time, until: Time) -> bool {
     let inside = |t: Time| t > from && t < until;
-    script.expectations.iter().enumerate().any(|(i, e)| {
-        w.verdicts[i].is_none()
-            && match e.kind {
-                ExpectKind::OpeningAtMost { from: a, to: b, .. }
-                | ExpectKind::OpeningAtLeast { from: a, to: b, .. } => inside(a) || inside(b),
-                _ => false,
-            }
-    })
+    open_windows(script, w).any(|win| inside(win.from) || inside(win.to))
 }
 
 /// Whether an opening at instant `t` breaks no undecided opening window that covers `t`.
 fn passes(script: &Script, w: &Watch, t: Time, opening: f64) -> bool {
-    script.expectations.iter().enumerate().all(|(i, e)| {
-        w.verdicts[i].is_some()
-            || match e.kind {
-                ExpectKind::OpeningAtMost { x, from, to } if t >= from && t <= to => {
-                    opening <= x + 1e-9
-                }
-                ExpectKind::OpeningAtLeast { x, from, to } if t >= from && t <= to => {
-                    opening >= x - 1e-9
-                }
-                _ => true,
-            }
-    })
+    // A NaN opening in a window does not pass (it sub-steps), though judging it breaks
+    // nothing.
+    open_windows(script, w).all(|win| !win.covers(t) || (!opening.is_nan() && !win.breaks(opening)))
 }
 
 fn secs(t: Time) -> String {
