@@ -547,7 +547,8 @@ fn pedal_path(pre: &PreSet<'_>, mut i: u32, g: &[f64]) -> Vec<f64> {
 }
 
 /// Breaks `inj` into a vehicle whose plate and driver are as given, with `active` already
-/// broken: what the fault captures, and the plate (a stuck actuator stops it).
+/// broken: the active faults after it (the new one last, with what it captured), and the plate
+/// (a stuck actuator stops it).
 fn break_into(
     model: &Model,
     inj: Injection,
@@ -555,7 +556,7 @@ fn break_into(
     pedal: f64,
     plate: PlantState,
     active: &[ActiveFault],
-) -> (ActiveFault, PlantState) {
+) -> (Vec<ActiveFault>, PlantState) {
     let mut positions = vec![0.0; model.sensors.len()];
     if let Some(d) = model.driver {
         positions[d] = pedal;
@@ -568,7 +569,38 @@ fn break_into(
     if crate::faults::actuator_condition(&list).stuck_at.is_some() {
         plate.velocity = 0.0;
     }
-    (af, plate)
+    (list, plate)
+}
+
+/// The active fault lists one search uses, each stored once, with what its faults captured
+/// (quantised for the visited key: volts for a stuck track, percent for a stuck plate) and
+/// whether it holds the plate stuck.
+struct FaultLists {
+    lists: Vec<Vec<ActiveFault>>,
+    captured: Vec<Vec<i32>>,
+    stuck: Vec<bool>,
+    quantum: f64,
+}
+
+impl FaultLists {
+    fn new(resolution: f64) -> FaultLists {
+        FaultLists {
+            lists: Vec::new(),
+            captured: Vec::new(),
+            stuck: Vec::new(),
+            quantum: resolution / 25.0,
+        }
+    }
+
+    fn push(&mut self, list: Vec<ActiveFault>) -> u32 {
+        let q = self.quantum;
+        self.captured
+            .push(list.iter().map(|a| quantise(a.captured, q)).collect());
+        self.stuck
+            .push(crate::faults::actuator_condition(&list).stuck_at.is_some());
+        self.lists.push(list);
+        (self.lists.len() - 1) as u32
+    }
 }
 
 /// Visited joint states with the requirement timers each was reached with (see [`admit`]).
@@ -646,37 +678,53 @@ pub fn search_fault<'v>(
         Default::default();
     let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored node
     let mut frontier: Vec<Node> = Vec::new();
-    // The active fault lists in use, each once (most roots share theirs), and what each
-    // captured, quantised for the key.
-    let mut root_faults: Vec<Vec<ActiveFault>> = Vec::new();
-    let mut captured: Vec<Vec<i32>> = Vec::new();
-    let mut stuck_lists: Vec<bool> = Vec::new();
-    let capture_key = |list: &[ActiveFault]| -> Vec<i32> {
-        // Volts for a stuck track, percent for a stuck plate: both at the resolution.
-        list.iter()
-            .map(|a| quantise(a.captured, cfg.resolution / 25.0))
-            .collect()
-    };
+    // The active fault lists in use, each once (most roots share theirs).
+    let mut lists = FaultLists::new(cfg.resolution);
     let mut buf = Vec::with_capacity(512);
     let mut cache = ConeCache::default();
+    // The lone futures' own (the search's holds the cone of the state in hand meanwhile).
+    let mut tail_cache = ConeCache::default();
     let mut monitor_seen = vec![false; model.faults.len()];
     let mut end_modes = vec![false; model.modes.len()];
     let mut found = vec![false; reqs.len()];
     let mut tries = vec![0usize; reqs.len()];
 
-    // The joint state: the faulty controller's memory within its cone of influence
-    // (continuous parts quantised), its plate, its fault-free twin exactly (its index in the
-    // fault-free set, itself closed at the resolution), the pedal, what the faults captured,
-    // detection, a pair's progress and an intermittent fault's phase. The requirement timers
-    // take part by dominance (see `admit`).
-    let key = |n: &Node, cache: &mut ConeCache, buf: &mut Vec<u8>, captured: &[Vec<i32>]| {
+    // The faulty vehicle's part of a key: its controller's memory within its cone of influence
+    // `rel` (continuous parts quantised), its plate, what its faults captured, and an
+    // intermittent fault's phase.
+    let faulty = |st: &crate::controller::State,
+                  rel: &crate::controller::Relevance,
+                  plate: PlantState,
+                  captured: &[i32],
+                  since: u32,
+                  buf: &mut Vec<u8>| {
+        st.encode_relevant(model, cfg.resolution, rel, buf);
+        buf.extend_from_slice(&quantise(plate.position, cfg.resolution).to_le_bytes());
+        buf.extend_from_slice(&quantise(plate.velocity, cfg.resolution * 40.0).to_le_bytes());
+        for c in captured {
+            buf.extend_from_slice(&c.to_le_bytes());
+        }
+        buf.extend_from_slice(&(since % cycle).to_le_bytes());
+    };
+    // The joint state: the faulty vehicle as above, its fault-free twin (see `exact_twin`),
+    // the pedal, detection and a pair's progress. The requirement timers take part by
+    // dominance (see `admit`).
+    let key = |n: &Node,
+               rel: &crate::controller::Relevance,
+               buf: &mut Vec<u8>,
+               lists: &FaultLists| {
         buf.clear();
         buf.push(1);
-        let (rel, _) = cone.cached(cache, model, &n.st);
-        n.st.encode_relevant(model, cfg.resolution, rel, buf);
-        buf.extend_from_slice(&quantise(n.plate.position, cfg.resolution).to_le_bytes());
-        buf.extend_from_slice(&quantise(n.plate.velocity, cfg.resolution * 40.0).to_le_bytes());
+        faulty(
+            &n.st,
+            rel,
+            n.plate,
+            &lists.captured[n.faults as usize],
+            n.since,
+            buf,
+        );
         if cfg.exact_twin {
+            // Its index in the fault-free set, itself closed at the resolution.
             buf.extend_from_slice(&n.twin.to_le_bytes());
         } else {
             // The twin by its plate alone (opening and speed, quantised): far fewer states,
@@ -687,11 +735,7 @@ pub fn search_fault<'v>(
             buf.extend_from_slice(&quantise(twin.velocity, cfg.resolution * 40.0).to_le_bytes());
         }
         buf.push(n.pedal);
-        for c in &captured[n.faults as usize] {
-            buf.extend_from_slice(&c.to_le_bytes());
-        }
         buf.push(u8::from(n.detected) | (u8::from(n.second_in) << 1));
-        buf.extend_from_slice(&((n.since) % cycle).to_le_bytes());
         digest(buf)
     };
 
@@ -706,7 +750,7 @@ pub fn search_fault<'v>(
         };
         let now = Time(period.0 * u64::from(o.depth));
         // A pair's second fault arrives later, at a step the search chooses.
-        let (af, plate) = break_into(
+        let (list, plate) = break_into(
             model,
             inj[0],
             now,
@@ -714,22 +758,13 @@ pub fn search_fault<'v>(
             o.sys.plate(),
             o.sys.active_faults(),
         );
-        let faults = {
-            // What a fault captures, and for an intermittent one its phase's origin, is all
-            // that tells two roots' lists apart (the fault-free set has no fault active).
-            let phase = if cycle > 1 { af.since.0 } else { 0 };
-            let tag = (af.captured.to_bits(), phase);
-            let next = root_faults.len() as u32;
-            let id = *shared.entry(tag).or_insert(next);
-            if id == next {
-                let mut list = o.sys.active_faults().to_vec();
-                list.push(af);
-                captured.push(capture_key(&list));
-                stuck_lists.push(crate::faults::actuator_condition(&list).stuck_at.is_some());
-                root_faults.push(list);
-            }
-            id
-        };
+        // What a fault captures, and for an intermittent one its phase's origin, is all that
+        // tells two roots' lists apart (the fault-free set has no fault active).
+        let af = list[list.len() - 1];
+        let phase = if cycle > 1 { af.since.0 } else { 0 };
+        let faults = *shared
+            .entry((af.captured.to_bits(), phase))
+            .or_insert_with(|| lists.push(list));
         let n = Node {
             st: st.clone(),
             plate,
@@ -746,7 +781,8 @@ pub fn search_fault<'v>(
             faults,
             second_in: inj.len() < 2,
         };
-        let k = key(&n, &mut cache, &mut buf, &captured);
+        let (rel, _) = cone.cached(&mut cache, model, &n.st);
+        let k = key(&n, rel, &mut buf, &lists);
         if admit(&mut visited, k, n.timers).is_some() {
             arena.push((u32::MAX, n.pedal, oi as u32));
             frontier.push(n);
@@ -819,21 +855,16 @@ pub fn search_fault<'v>(
                 if inject_b {
                     // The second fault arrives at this step's start, before the pedal moves,
                     // as a script's `break` line before its `pedal` line does.
-                    let (b, p) = break_into(
+                    let (list, p) = break_into(
                         model,
                         inj[1],
                         now,
                         g[usize::from(node.pedal)],
                         plate,
-                        &root_faults[node.faults as usize],
+                        &lists.lists[node.faults as usize],
                     );
                     plate = p;
-                    let mut list = root_faults[node.faults as usize].clone();
-                    list.push(b);
-                    faults_now = root_faults.len() as u32;
-                    captured.push(capture_key(&list));
-                    stuck_lists.push(crate::faults::actuator_condition(&list).stuck_at.is_some());
-                    root_faults.push(list);
+                    faults_now = lists.push(list);
                 }
                 if let Some(d) = model.driver {
                     positions[d] = g[usize::from(a)];
@@ -843,7 +874,7 @@ pub fn search_fault<'v>(
                     &mut st,
                     &mut plate,
                     &mut positions,
-                    &root_faults[faults_now as usize],
+                    &lists.lists[faults_now as usize],
                     now,
                     period,
                     &mut scratch,
@@ -970,25 +1001,25 @@ pub fn search_fault<'v>(
                 // cone of influence) has one future, whatever the driver does: follow it alone
                 // and, if no open requirement can be broken by it against the worst twin (closed,
                 // the driver released), the branch is done. A stuck plate is constant.
+                let (rel, driver_in) = {
+                    let c = cone.cached(&mut cache, model, &st);
+                    (&c.0, c.1)
+                };
                 if node.second_in {
-                    let done = if stuck_lists[faults_now as usize] {
+                    let done = if lists.stuck[faults_now as usize] {
                         !constant_can_violate(model, reqs, &found, open)
-                    } else if cone.cached(&mut cache, model, &st).1 {
+                    } else if driver_in {
                         false
                     } else {
                         buf.clear();
-                        let (rel, _) = cone.cached(&mut cache, model, &st);
-                        st.encode_relevant(model, cfg.resolution, rel, &mut buf);
-                        buf.extend_from_slice(
-                            &quantise(plate.position, cfg.resolution).to_le_bytes(),
+                        faulty(
+                            &st,
+                            rel,
+                            plate,
+                            &lists.captured[faults_now as usize],
+                            since,
+                            &mut buf,
                         );
-                        buf.extend_from_slice(
-                            &quantise(plate.velocity, cfg.resolution * 40.0).to_le_bytes(),
-                        );
-                        for c in &captured[faults_now as usize] {
-                            buf.extend_from_slice(&c.to_le_bytes());
-                        }
-                        buf.extend_from_slice(&(since % cycle).to_le_bytes());
                         buf.extend_from_slice(&timers.excess.to_le_bytes());
                         buf.extend_from_slice(&timers.released.to_le_bytes());
                         buf.extend(found.iter().map(|&f| u8::from(f)));
@@ -1001,7 +1032,7 @@ pub fn search_fault<'v>(
                                     cone: &cone,
                                     reqs,
                                     found: &found,
-                                    active: &root_faults[faults_now as usize],
+                                    active: &lists.lists[faults_now as usize],
                                     steps: horizon,
                                 };
                                 let d = tail.harmless(
@@ -1010,7 +1041,7 @@ pub fn search_fault<'v>(
                                     step,
                                     timers,
                                     &mut scratch,
-                                    &mut cache,
+                                    &mut tail_cache,
                                 );
                                 tails.insert(k, d);
                                 d
@@ -1037,7 +1068,7 @@ pub fn search_fault<'v>(
                     faults: faults_now,
                     second_in: node.second_in || inject_b,
                 };
-                let k = key(&child, &mut cache, &mut buf, &captured);
+                let k = key(&child, rel, &mut buf, &lists);
                 let Some(t) = admit(&mut visited, k, child.timers) else {
                     spare = Some(child.st);
                     continue;
@@ -1119,13 +1150,17 @@ impl Tail<'_> {
         let model = self.vehicle.ctl.model();
         let period = model.period;
         let mut st = st.clone();
+        // The state before each step, to see a step that changed nothing in the cone.
+        let mut prev = st.clone();
         let mut plate = plate;
         let mut positions = vec![0.0; model.sensors.len()];
         let mut excess = u32::from(timers.excess);
         let released = u32::from(timers.released);
+        let repeats = !self.time_varying();
         for k in 0..self.steps {
             let now = Time(period.0 * (u64::from(step) + u64::from(k)));
             let before = plate;
+            prev.clone_from(&st);
             crate::sim::system::period(
                 self.vehicle,
                 &mut st,
@@ -1161,23 +1196,12 @@ impl Tail<'_> {
                     return false;
                 }
             }
-            // Settled for good (drive off or held, nothing in the cone moving): the rest of
-            // the future repeats this opening.
-            if plate == before && plate.velocity == 0.0 && excess == 0 {
-                let mut next = st.clone();
-                let mut p2 = plate;
-                crate::sim::system::period(
-                    self.vehicle,
-                    &mut next,
-                    &mut p2,
-                    &mut positions,
-                    self.active,
-                    Time(now.0 + period.0),
-                    period,
-                    scratch,
-                );
-                let (rel, _) = self.cone.cached(cache, model, &st);
-                if p2 == plate && next.same_relevant(&st, rel) && !self.time_varying() {
+            // Settled for good: a step that left the plate at rest where it was and nothing in
+            // the cone changed is a fixed point (the cone's parts evolve by themselves), so
+            // the rest of the future repeats this opening.
+            if repeats && plate == before && plate.velocity == 0.0 && excess == 0 {
+                let (rel, _) = self.cone.cached(cache, model, &prev);
+                if st.same_relevant(&prev, rel) {
                     return !constant_can_violate(model, self.reqs, self.found, open);
                 }
             }
