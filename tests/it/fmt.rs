@@ -2,7 +2,7 @@
 //! re-spaced and re-commented copies of them: the layout is a fixed point, keeps every comment
 //! and means the same (same lowered model; same scenario tree).
 
-use crate::rel;
+use crate::{Rng, rel};
 use limpet::lang::{print, scenario};
 use proptest::prelude::*;
 use serde_json::Value;
@@ -203,23 +203,6 @@ fn reference_scenario_is_nearly_a_fixed_point() {
         .count();
     assert_eq!(changed, 2, "{out}");
     assert_eq!(text.lines().count(), out.lines().count());
-}
-
-/// A tiny deterministic generator, so a proptest seed replays the same edits.
-struct Rng(u64);
-
-impl Rng {
-    fn next(&mut self) -> u64 {
-        // xorshift64* (Vigna 2016, "An experimental exploration of Marsaglia's xorshift
-        // generators"); any fixed generator would do here.
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        self.0.wrapping_mul(0x2545_f491_4f6c_dd1d)
-    }
-    fn below(&mut self, n: u64) -> u64 {
-        self.next() % n.max(1)
-    }
 }
 
 const WORDS: [&str; 8] = ["note", "why", "°C", "x -> y", "#", "a,b", "{ }", "ünïcode"];

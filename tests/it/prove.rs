@@ -2,6 +2,7 @@
 //! a seeded random campaign finds nothing the prover missed, and the output does not depend
 //! on the thread count.
 
+use crate::Rng;
 use limpet::app::{self, Exit, Format, RunConfig};
 use limpet::model::Model;
 use limpet::prove::{self, Config, search};
@@ -117,22 +118,6 @@ fn output_is_the_same_for_one_and_two_threads() {
     let two = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
     assert_eq!(prove::report::text(&m, &one), prove::report::text(&m, &two));
     assert_eq!(prove::report::json(&m, &one), prove::report::json(&m, &two));
-}
-
-/// A seeded xorshift generator: the campaign is the same on every run.
-struct Rng(u64);
-
-impl Rng {
-    fn next(&mut self) -> u64 {
-        // xorshift64* (Vigna, "An experimental exploration of Marsaglia's xorshift generators").
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        self.0.wrapping_mul(0x2545_f491_4f6c_dd1d)
-    }
-    fn below(&mut self, n: u64) -> u64 {
-        self.next() % n.max(1)
-    }
 }
 
 /// Random pedal profiles on the prover's grid (one grid step per period at most) and random
