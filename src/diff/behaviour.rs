@@ -373,6 +373,10 @@ fn ms(t: Option<Time>) -> String {
     t.map_or("-".into(), |t| format!("{} ms", trim(t.as_ms_f64())))
 }
 
+/// A cell a review compares: its column, its text, and for a figure measured at the
+/// resolution, its value.
+type Cell = (String, String, Option<f64>);
+
 /// The cells of a row that a review compares, names under the new revision.
 fn row_cells(
     m: &Model,
@@ -380,7 +384,7 @@ fn row_cells(
     row: &Row,
     fault: &dyn Fn(usize) -> String,
     mode: &dyn Fn(usize) -> String,
-) -> Vec<(String, String)> {
+) -> Vec<Cell> {
     let r = &row.result;
     let list = |xs: &[usize], f: &dyn Fn(usize) -> String| {
         if xs.is_empty() {
@@ -391,8 +395,8 @@ fn row_cells(
             v.join(",")
         }
     };
-    let mut c = vec![
-        ("detected by".to_string(), list(&r.monitors, fault)),
+    let mut c: Vec<Cell> = vec![
+        ("detected by".to_string(), list(&r.monitors, fault), None),
         (
             "worst detection".to_string(),
             if r.monitors.is_empty() {
@@ -400,19 +404,32 @@ fn row_cells(
             } else {
                 ms(r.worst_detection)
             },
+            None,
         ),
-        ("ends in".to_string(), list(&r.end_modes, mode)),
-        ("to safe".to_string(), ms(r.to_safe)),
+        ("ends in".to_string(), list(&r.end_modes, mode), None),
+        ("to safe".to_string(), ms(r.to_safe), None),
         (
             "worst excess".to_string(),
             format!("{:.1} %", r.worst_excess.max(0.0)),
+            Some(r.worst_excess.max(0.0)),
         ),
     ];
     let verdicts = crate::prove::report::verdicts(p, row);
     for (req, v) in p.requirements.iter().zip(verdicts) {
-        c.push((req.text(m), v.to_string()));
+        c.push((req.text(m), v.to_string(), None));
     }
     c
+}
+
+/// Whether two cells of a column differ. A figure taken over merged states is an estimate
+/// within the resolution (a merged state stands for its first visitor, up to a resolution
+/// away), so two figures closer than that are not told apart.
+fn differ(old: &Cell, new: Option<&Cell>, resolution: f64) -> bool {
+    match (old, new) {
+        ((_, _, Some(a)), Some((_, _, Some(b)))) => (a - b).abs() > resolution,
+        (_, Some(n)) => old.1 != n.1,
+        (_, None) => old.1 != "-",
+    }
 }
 
 /// Compares two proofs row by row, matching rows by their fault description.
@@ -421,12 +438,13 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
     let om = |m: usize| names.old_mode(m);
     let nf = |f: usize| names.new_fault(f);
     let nm = |m: usize| names.new_mode(m);
-    let old_rows: Vec<(String, Vec<(String, String)>)> = po
+    let resolution = po.config.resolution.max(pn.config.resolution);
+    let old_rows: Vec<(String, Vec<Cell>)> = po
         .rows
         .iter()
         .map(|r| (r.describe(names.old), row_cells(names.old, po, r, &of, &om)))
         .collect();
-    let new_rows: Vec<(String, Vec<(String, String)>)> = pn
+    let new_rows: Vec<(String, Vec<Cell>)> = pn
         .rows
         .iter()
         .map(|r| (r.describe(names.new), row_cells(names.new, pn, r, &nf, &nm)))
@@ -442,25 +460,22 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
             }),
             Some((_, nc)) => {
                 let mut cells = Vec::new();
-                for (col, ov) in oc {
-                    let nv = nc
-                        .iter()
-                        .find(|x| &x.0 == col)
-                        .map_or("-", |x| x.1.as_str());
-                    if ov != nv {
+                for o in oc {
+                    let n = nc.iter().find(|x| x.0 == o.0);
+                    if differ(o, n, resolution) {
                         cells.push(CellChange {
-                            column: col.clone(),
-                            old: ov.clone(),
-                            new: nv.to_string(),
+                            column: o.0.clone(),
+                            old: o.1.clone(),
+                            new: n.map_or("-".into(), |x| x.1.clone()),
                         });
                     }
                 }
-                for (col, nv) in nc {
-                    if !oc.iter().any(|x| &x.0 == col) {
+                for n in nc {
+                    if !oc.iter().any(|x| x.0 == n.0) {
                         cells.push(CellChange {
-                            column: col.clone(),
+                            column: n.0.clone(),
                             old: "-".into(),
-                            new: nv.clone(),
+                            new: n.1.clone(),
                         });
                     }
                 }
@@ -486,7 +501,11 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
         }
     }
     MatrixDiff {
-        coverage: crate::prove::report::coverage(names.new, pn),
+        coverage: format!(
+            "{}; figures within the resolution ({} %) of each other count as the same",
+            crate::prove::report::coverage(names.new, pn),
+            trim(resolution)
+        ),
         rows: old_rows.len().max(new_rows.len()),
         changed,
         bound_hit: po.inconclusive() || pn.inconclusive(),
@@ -500,6 +519,18 @@ mod tests {
     const VAN: &str = include_str!("../../scenarios/van/van_throttle.limp");
 
     #[test]
+    fn figures_closer_than_the_resolution_are_the_same() {
+        let fig = |v: f64| ("worst excess".to_string(), format!("{v:.1} %"), Some(v));
+        let text = |t: &str| ("ends in".to_string(), t.to_string(), None);
+        assert!(!differ(&fig(38.4), Some(&fig(42.5)), 10.0));
+        assert!(differ(&fig(38.4), Some(&fig(48.5)), 10.0));
+        assert!(differ(&fig(38.4), Some(&fig(38.6)), 0.1));
+        assert!(differ(&text("shutdown"), Some(&text("idle_only")), 10.0));
+        assert!(!differ(&text("shutdown"), Some(&text("shutdown")), 10.0));
+        assert!(differ(&fig(3.0), None, 10.0));
+    }
+
+    #[test]
     fn matrix_rows_pair_by_fault_and_report_the_changed_columns() {
         let (Ok(old), Ok(new)) = (
             crate::model::lower(VAN),
@@ -508,10 +539,11 @@ mod tests {
             panic!("fixture does not lower");
         };
         let cfg = crate::prove::Config {
-            only: Some("pedal.b stuck".into()),
-            max_states: 2_000,
+            // A fault whose search closes, so that the figures
+            // are the policies' own and not where a bound happened to cut each search off.
+            only: Some("throttle.a open".into()),
             jobs: 1,
-            ..crate::diff::review_search()
+            ..crate::prove::Config::default()
         };
         let quiet = |_: usize, _: usize, _: usize| {};
         let (Ok(po), Ok(pn)) = (
@@ -527,13 +559,14 @@ mod tests {
             fault_map: &st.fault_map,
             mode_map: &st.mode_map,
         };
+        assert!(!po.inconclusive() && !pn.inconclusive());
         let same = matrices(&po, &po, &names);
         assert!(same.changed.is_empty(), "{:?}", same.changed);
         let d = matrices(&po, &pn, &names);
         assert_eq!(d.rows, 1);
         assert_eq!(d.changed.len(), 1, "{:?}", d.changed);
         let row = &d.changed[0];
-        assert_eq!(row.fault, "pedal.b stuck");
+        assert_eq!(row.fault, "throttle.a open");
         let cols: Vec<&str> = row.cells.iter().map(|c| c.column.as_str()).collect();
         assert_eq!(
             cols,

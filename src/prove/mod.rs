@@ -2,6 +2,7 @@
 //! instants, the reaction matrix, and counterexamples written as scenario scripts that replay.
 
 pub mod cone;
+pub mod faulty;
 pub mod report;
 pub mod search;
 pub mod space;

@@ -330,6 +330,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
                 "worst_opening_below_ceiling": crate::sim::trace::round6(r.worst_opening_below_ceiling),
                 "worst_release_to_idle_ms": r.worst_idle_after_release.as_ms_f64(),
                 "states": r.states,
+                "faulty_states": r.faulty_states,
                 "injection_instants": r.roots,
                 "truncated": r.truncated,
                 "settled_early": r.settled_early,

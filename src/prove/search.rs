@@ -5,9 +5,9 @@
 //! found for a requirement has the shortest path; a state whose quantised encoding was seen
 //! before is not expanded again.
 
-use super::cone::{Cone, ConeCache};
+use super::faulty::{DROPPED, Faulty};
 use super::{Config, Requirement as Req};
-use crate::faults::{ActiveFault, Injection, TrackFault};
+use crate::faults::{ActiveFault, Injection};
 use crate::model::Model;
 use crate::plant::PlantState;
 use crate::sim::system::{System, Vehicle};
@@ -103,12 +103,34 @@ pub struct PreSet<'v> {
     pub nodes: Vec<PreNode<'v>>,
     /// Whether the bound on states was hit before closure.
     pub truncated: bool,
+    /// Per node, a dense class of its quantised plate (opening and speed): the twin's part of
+    /// a joint key when the twin is paired by its plate alone.
+    pub plate_class: Vec<u32>,
+    /// Per node, the plate's opening, and the successor when the driver eases off fastest
+    /// (the first action): compact copies for the search's inner loop.
+    pub opening: Vec<f64>,
+    pub release: Vec<u32>,
+    /// Per node, the monitors set, `words` 64-bit words each.
+    masks: Vec<u64>,
+    words: usize,
+}
+
+impl PreSet<'_> {
+    /// The monitors set in node `t`, as 64-bit words.
+    pub fn mask(&self, t: u32) -> &[u64] {
+        let i = t as usize * self.words;
+        &self.masks[i..i + self.words]
+    }
 }
 
 /// The pedal grid: `0, g, 2g, ..., 100` percent.
 /// The finest grid the state encoding holds: pedal indices are 7 bits (the eighth marks the
 /// second fault of a pair arriving).
 pub const MIN_GRID: f64 = 1.0;
+
+/// The most states one set (fault-free, faulty or joint) holds, whatever `--max-states` says:
+/// node indices are packed into 31 bits of a joint key.
+pub const MAX_NODES: usize = 1 << 31;
 
 pub fn grid(cfg: &Config) -> Vec<f64> {
     let step = if cfg.grid.is_finite() {
@@ -146,7 +168,7 @@ pub fn period_step(sys: &mut System<'_>, model: &Model, pedal: f64, now: Time) {
     sys.advance_plant(now, model.period);
 }
 
-fn quantise(x: f64, q: f64) -> i32 {
+pub(super) fn quantise(x: f64, q: f64) -> i32 {
     if x.is_finite() {
         (x / q).round() as i32
     } else {
@@ -235,7 +257,7 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
                 succ.push(j);
                 continue;
             }
-            if nodes.len() >= cfg.max_states {
+            if nodes.len() >= cfg.max_states.min(MAX_NODES) {
                 truncated = true;
                 succ.push(i as u32);
                 continue;
@@ -249,7 +271,40 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
         }
         nodes[i].succ = succ;
     }
-    PreSet { nodes, truncated }
+    let words = model.faults.len().div_ceil(64).max(1);
+    let mut masks = Vec::with_capacity(nodes.len() * words);
+    let mut classes: std::collections::HashMap<(i32, i32), u32> = Default::default();
+    let mut plate_class = Vec::with_capacity(nodes.len());
+    let opening = nodes.iter().map(|n| n.sys.opening()).collect();
+    let release = nodes.iter().map(|n| n.succ[0]).collect();
+    for n in &nodes {
+        for w in 0..words {
+            let mut m = 0u64;
+            for b in 0..64 {
+                let f = w * 64 + b;
+                if f < model.faults.len() && n.sys.fault_set(f) {
+                    m |= 1 << b;
+                }
+            }
+            masks.push(m);
+        }
+        let p = n.sys.plate();
+        let c = (
+            quantise(p.position, cfg.resolution),
+            quantise(p.velocity, cfg.resolution * 40.0),
+        );
+        let next = classes.len() as u32;
+        plate_class.push(*classes.entry(c).or_insert(next));
+    }
+    PreSet {
+        nodes,
+        truncated,
+        plate_class,
+        opening,
+        release,
+        masks,
+        words,
+    }
 }
 
 /// Whether `a` is `b` or one of its ancestors in the pre-fault tree.
@@ -277,29 +332,6 @@ pub fn release_cap(model: &Model, cfg: &Config) -> u16 {
         .max()
         .unwrap_or(Time::ZERO);
     u16::try_from(within.0.div_ceil(model.period.0.max(1)) + 1).unwrap_or(u16::MAX)
-}
-
-/// A joint state: the faulty vehicle, the index of its fault-free twin in the pre-fault set,
-/// the pedal, the requirement timers, and the steps since injection.
-#[derive(Clone, Debug)]
-struct Node {
-    /// The faulty controller's memory and plate; its active faults are its origin's.
-    st: crate::controller::State,
-    plate: crate::plant::PlantState,
-    twin: u32,
-    pedal: u8,
-    timers: Timers,
-    since: u32,
-    /// Absolute step index (for intermittent phases and the script).
-    step: u32,
-    /// The pre-fault state the fault was injected into (for the root of a path).
-    origin: u32,
-    /// Whether any monitor has set since injection.
-    detected: bool,
-    /// Index of this node's active faults in the search's fault lists.
-    faults: u32,
-    /// For a pair: whether the second fault is in yet (it arrives at a step of its own).
-    second_in: bool,
 }
 
 /// A violated requirement with the shortest path that shows it.
@@ -355,6 +387,8 @@ pub struct FaultResult {
     /// Branches ended because the faulty vehicle settled for good at an opening that breaks
     /// nothing (see the search).
     pub settled: usize,
+    /// Nodes of the faulty vehicle's own graph (each stepped once per action).
+    pub faulty_states: usize,
 }
 
 /// How many candidate violations of one requirement are replayed before the search gives up
@@ -549,7 +583,7 @@ fn pedal_path(pre: &PreSet<'_>, mut i: u32, g: &[f64]) -> Vec<f64> {
 /// Breaks `inj` into a vehicle whose plate and driver are as given, with `active` already
 /// broken: the active faults after it (the new one last, with what it captured), and the plate
 /// (a stuck actuator stops it).
-fn break_into(
+pub(super) fn break_into(
     model: &Model,
     inj: Injection,
     now: Time,
@@ -575,15 +609,15 @@ fn break_into(
 /// The active fault lists one search uses, each stored once, with what its faults captured
 /// (quantised for the visited key: volts for a stuck track, percent for a stuck plate) and
 /// whether it holds the plate stuck.
-struct FaultLists {
-    lists: Vec<Vec<ActiveFault>>,
-    captured: Vec<Vec<i32>>,
-    stuck: Vec<bool>,
+pub struct FaultLists {
+    pub lists: Vec<Vec<ActiveFault>>,
+    pub captured: Vec<Vec<i32>>,
+    pub stuck: Vec<bool>,
     quantum: f64,
 }
 
 impl FaultLists {
-    fn new(resolution: f64) -> FaultLists {
+    pub fn new(resolution: f64) -> FaultLists {
         FaultLists {
             lists: Vec::new(),
             captured: Vec::new(),
@@ -592,7 +626,7 @@ impl FaultLists {
         }
     }
 
-    fn push(&mut self, list: Vec<ActiveFault>) -> u32 {
+    pub fn push(&mut self, list: Vec<ActiveFault>) -> u32 {
         let q = self.quantum;
         self.captured
             .push(list.iter().map(|a| quantise(a.captured, q)).collect());
@@ -612,23 +646,72 @@ pub type VisitedTimers = std::collections::HashMap<u128, Timers, BuildHasherDefa
 /// become the larger of the two in each, and the state goes on with them: an
 /// over-approximation, on the side of finding violations (each is confirmed by an exact replay
 /// before it is reported).
-fn admit(visited: &mut VisitedTimers, k: u128, t: Timers) -> Option<Timers> {
-    match visited.get_mut(&k) {
-        Some(old) if old.excess >= t.excess && old.released >= t.released => None,
-        Some(old) => {
-            old.excess = old.excess.max(t.excess);
-            old.released = old.released.max(t.released);
-            Some(*old)
+fn admit<K: std::hash::Hash + Eq, S: std::hash::BuildHasher>(
+    visited: &mut std::collections::HashMap<K, Timers, S>,
+    k: K,
+    t: Timers,
+) -> Option<Timers> {
+    match visited.entry(k) {
+        std::collections::hash_map::Entry::Occupied(mut e) => {
+            let old = e.get_mut();
+            if old.excess >= t.excess && old.released >= t.released {
+                None
+            } else {
+                old.excess = old.excess.max(t.excess);
+                old.released = old.released.max(t.released);
+                Some(*old)
+            }
         }
-        None => {
-            visited.insert(k, t);
+        std::collections::hash_map::Entry::Vacant(e) => {
+            e.insert(t);
             Some(t)
         }
     }
 }
 
+/// A joint state of the search: a node of the faulty vehicle's graph, its fault-free twin in
+/// the pre-fault set, the requirement timers, whether a monitor has set since injection, and
+/// its index in the arena of stored states (for the path).
+#[derive(Clone, Copy, Debug)]
+struct Joint {
+    f: u32,
+    t: u32,
+    timers: Timers,
+    detected: bool,
+    id: u32,
+}
+
+/// A fast hasher for the joint visited set's packed 64-bit keys.
+#[derive(Default)]
+pub struct MixU64(u64);
+
+impl Hasher for MixU64 {
+    fn finish(&self) -> u64 {
+        let mut z = self.0;
+        z = (z ^ (z >> 32)).wrapping_mul(0xd6e8_feb8_6659_fd93);
+        z ^ (z >> 32)
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.0 = self.0.rotate_left(8) ^ u64::from(b);
+        }
+    }
+    fn write_u64(&mut self, i: u64) {
+        self.0 ^= i;
+    }
+}
+
+/// Visited joint states, by packed key, with the requirement timers each was reached with.
+type JointVisited = std::collections::HashMap<u64, Timers, BuildHasherDefault<MixU64>>;
+
 /// Searches one fault, or a pair: the first of a pair is injected into every fault-free
 /// state, the second arrives at a later step the search chooses.
+///
+/// The search walks the product of two graphs closed at the resolution: the faulty vehicle's
+/// (see [`Faulty`], stepped lazily, each successor once) and the fault-free set, both moved by
+/// the same pedal action. A joint state pairs a faulty node with its twin (by the twin's index
+/// with `exact_twin`, else by its plate) and is expanded once per timer dominance (see
+/// [`admit`]).
 pub fn search_fault<'v>(
     vehicle: &'v Vehicle,
     pre: &PreSet<'v>,
@@ -651,92 +734,41 @@ pub fn search_fault<'v>(
         .unwrap_or(0)
         .saturating_add(1)
         .min(u32::from(u16::MAX)) as u16;
-    // Intermittent faults add their phase to the state.
-    let cycle: u32 = inj
-        .iter()
-        .filter_map(|i| match i {
-            Injection::Track {
-                fault: TrackFault::Intermittent { every, .. },
-                ..
-            } => Some(
-                u32::try_from(every.0.div_ceil(period.0.max(1)))
-                    .unwrap_or(1)
-                    .max(1),
-            ),
-            _ => None,
-        })
-        .fold(1, |a, b| a * b / gcd(a, b));
-    let cone = Cone::new(model);
+    let mut fg = Faulty::new(
+        vehicle,
+        inj,
+        cfg,
+        pre.nodes[0].sys.sample().clone(),
+        cfg.max_states.min(MAX_NODES),
+    );
+    let cycle = fg.cycle;
 
     let mut res = FaultResult {
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         ..FaultResult::default()
     };
-    let mut visited = VisitedTimers::default();
-    // Verdicts of the lone futures of vehicles the driver no longer steers (see `Tail`).
-    let mut tails: std::collections::HashMap<u128, bool, BuildHasherDefault<PassThrough>> =
+    let mut visited = JointVisited::default();
+    // The lone futures of vehicles the driver no longer steers, by faulty node (see
+    // `LoneFuture`).
+    let mut tails: std::collections::HashMap<u32, LoneFuture, BuildHasherDefault<MixU64>> =
         Default::default();
-    let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored node
-    let mut frontier: Vec<Node> = Vec::new();
-    // The active fault lists in use, each once (most roots share theirs).
-    let mut lists = FaultLists::new(cfg.resolution);
-    let mut buf = Vec::with_capacity(512);
-    let mut cache = ConeCache::default();
-    // The lone futures' own (the search's holds the cone of the state in hand meanwhile).
-    let mut tail_cache = ConeCache::default();
-    let mut monitor_seen = vec![false; model.faults.len()];
+    let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored state
+    let mut frontier: Vec<Joint> = Vec::new();
+    let mut tail_scratch = (pre.nodes[0].sys.sample().clone(), Default::default());
+    let mut monitor_seen = vec![0u64; model.faults.len().div_ceil(64).max(1)];
     let mut end_modes = vec![false; model.modes.len()];
     let mut found = vec![false; reqs.len()];
     let mut tries = vec![0usize; reqs.len()];
-
-    // The faulty vehicle's part of a key: its controller's memory within its cone of influence
-    // `rel` (continuous parts quantised), its plate, what its faults captured, and an
-    // intermittent fault's phase.
-    let faulty = |st: &crate::controller::State,
-                  rel: &crate::controller::Relevance,
-                  plate: PlantState,
-                  captured: &[i32],
-                  since: u32,
-                  buf: &mut Vec<u8>| {
-        st.encode_relevant(model, cfg.resolution, rel, buf);
-        buf.extend_from_slice(&quantise(plate.position, cfg.resolution).to_le_bytes());
-        buf.extend_from_slice(&quantise(plate.velocity, cfg.resolution * 40.0).to_le_bytes());
-        for c in captured {
-            buf.extend_from_slice(&c.to_le_bytes());
-        }
-        buf.extend_from_slice(&(since % cycle).to_le_bytes());
-    };
-    // The joint state: the faulty vehicle as above, its fault-free twin (see `exact_twin`),
-    // the pedal, detection and a pair's progress. The requirement timers take part by
-    // dominance (see `admit`).
-    let key = |n: &Node,
-               rel: &crate::controller::Relevance,
-               buf: &mut Vec<u8>,
-               lists: &FaultLists| {
-        buf.clear();
-        buf.push(1);
-        faulty(
-            &n.st,
-            rel,
-            n.plate,
-            &lists.captured[n.faults as usize],
-            n.since,
-            buf,
-        );
+    // The twin's part of a joint key: its index, or the class of its quantised plate.
+    let twin_part = |t: u32| -> u64 {
         if cfg.exact_twin {
-            // Its index in the fault-free set, itself closed at the resolution.
-            buf.extend_from_slice(&n.twin.to_le_bytes());
+            u64::from(t)
         } else {
-            // The twin by its plate alone (opening and speed, quantised): far fewer states,
-            // but two twins that differ elsewhere merge, so the absence of a violation is
-            // approximate. Violations are exact either way: each is confirmed by a replay.
-            let twin = pre.nodes[n.twin as usize].sys.plate();
-            buf.extend_from_slice(&quantise(twin.position, cfg.resolution).to_le_bytes());
-            buf.extend_from_slice(&quantise(twin.velocity, cfg.resolution * 40.0).to_le_bytes());
+            u64::from(pre.plate_class[t as usize])
         }
-        buf.push(n.pedal);
-        buf.push(u8::from(n.detected) | (u8::from(n.second_in) << 1));
-        digest(buf)
+    };
+    let key = |f: u32, t: u32, detected: bool| -> u64 {
+        (u64::from(f) << 32) | (twin_part(t) << 1) | u64::from(detected)
     };
 
     // Roots: the fault injected into every fault-free state, i.e. at every injection instant
@@ -764,28 +796,33 @@ pub fn search_fault<'v>(
         let phase = if cycle > 1 { af.since.0 } else { 0 };
         let faults = *shared
             .entry((af.captured.to_bits(), phase))
-            .or_insert_with(|| lists.push(list));
-        let n = Node {
-            st: st.clone(),
+            .or_insert_with(|| fg.lists.push(list));
+        let f = fg.intern(
+            st.clone(),
             plate,
-            twin: oi as u32,
-            pedal: o.pedal,
-            timers: Timers {
-                excess: 0,
-                released: o.released,
-            },
-            since: 0,
-            step: o.depth,
-            origin: oi as u32,
-            detected: false,
             faults,
-            second_in: inj.len() < 2,
+            o.depth,
+            0,
+            o.pedal,
+            inj.len() < 2,
+        );
+        if f == DROPPED {
+            res.truncated = true;
+            continue;
+        }
+        let timers = Timers {
+            excess: 0,
+            released: o.released,
         };
-        let (rel, _) = cone.cached(&mut cache, model, &n.st);
-        let k = key(&n, rel, &mut buf, &lists);
-        if admit(&mut visited, k, n.timers).is_some() {
-            arena.push((u32::MAX, n.pedal, oi as u32));
-            frontier.push(n);
+        if admit(&mut visited, key(f, oi as u32, false), timers).is_some() {
+            frontier.push(Joint {
+                f,
+                t: oi as u32,
+                timers,
+                detected: false,
+                id: arena.len() as u32,
+            });
+            arena.push((u32::MAX, o.pedal, oi as u32));
         }
     }
     res.roots = frontier.len();
@@ -800,300 +837,216 @@ pub fn search_fault<'v>(
         &mut res,
     );
     let mut acts = Vec::new();
-    let mut choices: Vec<(usize, u8, bool)> = Vec::new();
-    let mut positions = vec![0.0; model.sensors.len()];
-    let mut scratch = (
-        pre.nodes[0].sys.sample().clone(),
-        crate::controller::Outputs::default(),
-    );
-    // A spare controller state to step successors in: a successor that is kept takes it
-    // along, one that is dropped gives it back, so only kept states allocate.
-    let mut spare: Option<crate::controller::State> = None;
     let mut next_frontier = Vec::new();
-    // Arena index of each frontier node.
-    let mut frontier_ids: Vec<u32> = (0..frontier.len() as u32).collect();
-    let mut next_ids = Vec::new();
     // Every requirement violated and confirmed: the verdicts are final, the search ends.
     let all_found = |found: &[bool]| !found.is_empty() && found.iter().all(|&f| f);
+    // All roots are at the injection, so the breadth-first level is the time since it.
+    let mut since = 0u32;
     'search: while !frontier.is_empty() {
         next_frontier.clear();
-        next_ids.clear();
-        for (fi, node) in frontier.iter().enumerate() {
+        for node in &frontier {
             if all_found(&found) {
                 res.settled_early = true;
                 break 'search;
             }
-            let my_id = frontier_ids[fi];
-            if node.since >= horizon {
-                end_modes[node.st.mode()] = true;
+            let fi = node.f as usize;
+            if since >= horizon {
+                end_modes[fg.st[fi].mode()] = true;
                 if !node.detected {
                     res.undetected_branch = true;
                 }
                 continue;
             }
-            let now = Time(period.0 * u64::from(node.step));
-            actions(cfg, node.pedal, g.len(), &mut acts);
-            let twin = &pre.nodes[node.twin as usize];
+            let pedal = fg.pedal[fi];
+            let second_in = fg.second_in[fi];
+            actions(cfg, pedal, g.len(), &mut acts);
+            let twin = &pre.nodes[node.t as usize];
             let mut any_new = false;
-            choices.clear();
             for (ai, &a) in acts.iter().enumerate() {
-                choices.push((ai, a, false));
-                if !node.second_in {
-                    choices.push((ai, a, true));
-                }
-            }
-            for &(ai, a, inject_b) in &choices {
-                let mut st = match spare.take() {
-                    Some(mut s) => {
-                        s.clone_from(&node.st);
-                        s
-                    }
-                    None => node.st.clone(),
-                };
-                let mut plate = node.plate;
-                let mut faults_now = node.faults;
-                if inject_b {
-                    // The second fault arrives at this step's start, before the pedal moves,
-                    // as a script's `break` line before its `pedal` line does.
-                    let (list, p) = break_into(
-                        model,
-                        inj[1],
-                        now,
-                        g[usize::from(node.pedal)],
-                        plate,
-                        &lists.lists[node.faults as usize],
-                    );
-                    plate = p;
-                    faults_now = lists.push(list);
-                }
-                if let Some(d) = model.driver {
-                    positions[d] = g[usize::from(a)];
-                }
-                crate::sim::system::period(
-                    vehicle,
-                    &mut st,
-                    &mut plate,
-                    &mut positions,
-                    &lists.lists[faults_now as usize],
-                    now,
-                    period,
-                    &mut scratch,
-                );
-                let twin_next = twin.succ.get(ai).copied().unwrap_or(node.twin);
-                let tw = &pre.nodes[twin_next as usize].sys;
-                let driver = g[usize::from(a)];
-                let (open, open_n) = (plate.position, tw.opening());
-                let mut timers = node.timers;
-                timers.released = if a == 0 {
-                    (timers.released + 1).min(release_cap)
-                } else {
-                    0
-                };
-                let mut excess_now = false;
-                let since = node.since + 1;
-                let step = node.step + 1;
-                // Monitors and detection.
-                let mut detected = node.detected;
-                for (f, seen) in monitor_seen.iter_mut().enumerate() {
-                    if st.fault_set(f) && !tw.fault_set(f) {
-                        *seen = true;
-                        if !detected {
-                            detected = true;
-                            let t = Time(period.0 * u64::from(since));
-                            res.worst_detection = Some(res.worst_detection.map_or(t, |w| w.max(t)));
-                        }
-                    }
-                }
-                if model.modes[st.mode()].is_safe() && !model.modes[node.st.mode()].is_safe() {
-                    let t = Time(period.0 * u64::from(since));
-                    res.to_safe = Some(res.to_safe.map_or(t, |w| w.max(t)));
-                }
-                // Requirements.
-                for (ri, r) in reqs.iter().enumerate() {
-                    let violated = match *r {
-                        Req::Excess { limit, steps } => {
-                            // The springs' default position is the designed limp-home opening:
-                            // resting there is not an excess, whatever the twin does.
-                            let ex = open - open_n.max(model.actuator.default);
-                            if ex > res.worst_excess {
-                                res.worst_excess = ex;
-                            }
-                            if ex > limit {
-                                excess_now = true;
-                                let n = timers.excess + 1;
-                                let d = Time(period.0 * u64::from(n));
-                                if d > res.worst_excess_duration {
-                                    res.worst_excess_duration = d;
-                                }
-                                u32::from(n) > steps
-                            } else {
-                                false
-                            }
-                        }
-                        Req::Never {
-                            above,
-                            unless_driver,
-                        } => {
-                            let below = unless_driver.is_none_or(|y| driver <= y);
-                            if below && open > res.worst_opening_below_ceiling {
-                                res.worst_opening_below_ceiling = open;
-                            }
-                            below && open > above && open_n <= above
-                        }
-                        Req::Idle { idle, steps } => {
-                            if u32::from(timers.released) >= steps
-                                && open > idle
-                                && tw.opening() <= idle
-                            {
-                                true
-                            } else {
-                                if timers.released > 0 && open > idle {
-                                    let d = Time(period.0 * u64::from(timers.released));
-                                    if d > res.worst_idle_after_release {
-                                        res.worst_idle_after_release = d;
-                                    }
-                                }
-                                false
-                            }
-                        }
-                    };
-                    if violated && !found[ri] && tries[ri] < MAX_CONFIRMATIONS {
-                        tries[ri] += 1;
-                        // Rebuild the pedal path: pre-fault prefix, then the joint path.
-                        let mut tail = vec![(driver, inject_b)];
-                        let mut id = my_id;
-                        let mut origin = node.origin;
-                        while id != u32::MAX {
-                            let (parent, pedal, o) = arena[id as usize];
-                            if parent == u32::MAX {
-                                origin = o;
-                                break;
-                            }
-                            tail.push((g[usize::from(pedal & 0x7f)], pedal & 0x80 != 0));
-                            id = parent;
-                        }
-                        tail.reverse();
-                        let mut pedal = pedal_path(pre, origin, &g);
-                        let inject_step = pedal.len() as u32;
-                        let second_step = tail
-                            .iter()
-                            .position(|&(_, b)| b)
-                            .map(|i| inject_step + i as u32);
-                        pedal.extend(tail.iter().map(|&(p, _)| p));
-                        // Merged states stand for their first visitor: replay the path exactly,
-                        // faulty and fault-free, and keep the violation only if it is real.
-                        if let Some(v) =
-                            confirm(vehicle, inj, &pedal, inject_step, second_step, ri, r)
-                        {
-                            found[ri] = true;
-                            res.violations.push(v);
-                        } else {
-                            res.unconfirmed += 1;
-                        }
-                    }
-                }
-                timers.excess = if excess_now {
-                    (timers.excess + 1).min(excess_cap)
-                } else {
-                    0
-                };
-                // A faulty vehicle that the driver can no longer steer (no pedal track in its
-                // cone of influence) has one future, whatever the driver does: follow it alone
-                // and, if no open requirement can be broken by it against the worst twin (closed,
-                // the driver released), the branch is done. A stuck plate is constant.
-                let (rel, driver_in) = {
-                    let c = cone.cached(&mut cache, model, &st);
-                    (&c.0, c.1)
-                };
-                if node.second_in {
-                    let done = if lists.stuck[faults_now as usize] {
-                        !constant_can_violate(model, reqs, &found, open)
-                    } else if driver_in {
-                        false
-                    } else {
-                        buf.clear();
-                        faulty(
-                            &st,
-                            rel,
-                            plate,
-                            &lists.captured[faults_now as usize],
-                            since,
-                            &mut buf,
-                        );
-                        buf.extend_from_slice(&timers.excess.to_le_bytes());
-                        buf.extend_from_slice(&timers.released.to_le_bytes());
-                        buf.extend(found.iter().map(|&f| u8::from(f)));
-                        let k = digest(&buf);
-                        match tails.get(&k) {
-                            Some(&d) => d,
-                            None => {
-                                let tail = Tail {
-                                    vehicle,
-                                    cone: &cone,
-                                    reqs,
-                                    found: &found,
-                                    active: &lists.lists[faults_now as usize],
-                                    steps: horizon,
-                                };
-                                let d = tail.harmless(
-                                    &st,
-                                    plate,
-                                    step,
-                                    timers,
-                                    &mut scratch,
-                                    &mut tail_cache,
-                                );
-                                tails.insert(k, d);
-                                d
-                            }
-                        }
-                    };
-                    if done {
-                        res.settled += 1;
-                        end_modes[st.mode()] = true;
-                        spare = Some(st);
+                for inject_b in [false, true] {
+                    if inject_b && second_in {
                         continue;
                     }
+                    let f2 = fg.succ(node.f, ai, a, inject_b);
+                    if f2 == DROPPED {
+                        res.truncated = true;
+                        continue;
+                    }
+                    let f2i = f2 as usize;
+                    let t2 = twin.succ.get(ai).copied().unwrap_or(node.t);
+                    let driver = g[usize::from(a)];
+                    let (open, open_n) = (fg.plate[f2i].position, pre.opening[t2 as usize]);
+                    let mut timers = node.timers;
+                    timers.released = if a == 0 {
+                        (timers.released + 1).min(release_cap)
+                    } else {
+                        0
+                    };
+                    let mut excess_now = false;
+                    let since_next = since + 1;
+                    // Monitors and detection: set in the faulty vehicle, not in its twin.
+                    let mut detected = node.detected;
+                    let tw_mask = pre.mask(t2);
+                    for ((seen, &m), &n) in monitor_seen.iter_mut().zip(fg.mask(f2)).zip(tw_mask) {
+                        let new = m & !n;
+                        if new != 0 {
+                            *seen |= new;
+                            if !detected {
+                                detected = true;
+                                let t = Time(period.0 * u64::from(since_next));
+                                res.worst_detection =
+                                    Some(res.worst_detection.map_or(t, |w| w.max(t)));
+                            }
+                        }
+                    }
+                    if model.modes[fg.st[f2i].mode()].is_safe()
+                        && !model.modes[fg.st[fi].mode()].is_safe()
+                    {
+                        let t = Time(period.0 * u64::from(since_next));
+                        res.to_safe = Some(res.to_safe.map_or(t, |w| w.max(t)));
+                    }
+                    // Requirements.
+                    for (ri, r) in reqs.iter().enumerate() {
+                        let violated = match *r {
+                            Req::Excess { limit, steps } => {
+                                // The springs' default position is the designed limp-home
+                                // opening: resting there is not an excess, whatever the twin
+                                // does.
+                                let ex = open - open_n.max(model.actuator.default);
+                                if ex > res.worst_excess {
+                                    res.worst_excess = ex;
+                                }
+                                if ex > limit {
+                                    excess_now = true;
+                                    let n = timers.excess + 1;
+                                    let d = Time(period.0 * u64::from(n));
+                                    if d > res.worst_excess_duration {
+                                        res.worst_excess_duration = d;
+                                    }
+                                    u32::from(n) > steps
+                                } else {
+                                    false
+                                }
+                            }
+                            Req::Never {
+                                above,
+                                unless_driver,
+                            } => {
+                                let below = unless_driver.is_none_or(|y| driver <= y);
+                                if below && open > res.worst_opening_below_ceiling {
+                                    res.worst_opening_below_ceiling = open;
+                                }
+                                below && open > above && open_n <= above
+                            }
+                            Req::Idle { idle, steps } => {
+                                if u32::from(timers.released) >= steps
+                                    && open > idle
+                                    && open_n <= idle
+                                {
+                                    true
+                                } else {
+                                    if timers.released > 0 && open > idle {
+                                        let d = Time(period.0 * u64::from(timers.released));
+                                        if d > res.worst_idle_after_release {
+                                            res.worst_idle_after_release = d;
+                                        }
+                                    }
+                                    false
+                                }
+                            }
+                        };
+                        if violated && !found[ri] && tries[ri] < MAX_CONFIRMATIONS {
+                            tries[ri] += 1;
+                            let (pedal, inject_step, second_step) =
+                                joint_path(pre, &arena, &g, node.id, driver, inject_b);
+                            // Merged states stand for their first visitor: replay the path
+                            // exactly, faulty and fault-free, and keep the violation only if
+                            // it is real.
+                            if let Some(v) =
+                                confirm(vehicle, inj, &pedal, inject_step, second_step, ri, r)
+                            {
+                                found[ri] = true;
+                                res.violations.push(v);
+                            } else {
+                                res.unconfirmed += 1;
+                            }
+                        }
+                    }
+                    timers.excess = if excess_now {
+                        (timers.excess + 1).min(excess_cap)
+                    } else {
+                        0
+                    };
+                    // A faulty vehicle that the driver can no longer steer (no pedal track in
+                    // its cone of influence) has one future, whatever the driver does: follow
+                    // it alone and, if no open requirement can be broken by it against the
+                    // worst twin (closed, the driver released), the branch is done. A stuck
+                    // plate is constant.
+                    if fg.second_in[f2i] {
+                        let faults = fg.faults[f2i] as usize;
+                        let done = if fg.lists.stuck[faults] {
+                            let held = !constant_can_violate(model, reqs, &found, open);
+                            if held {
+                                end_modes[fg.st[f2i].mode()] = true;
+                            }
+                            held
+                        } else if fg.driver_in[f2i] {
+                            false
+                        } else {
+                            let lone = tails.entry(f2).or_insert_with(|| {
+                                LoneFuture::follow(
+                                    &mut fg,
+                                    model,
+                                    reqs,
+                                    f2,
+                                    horizon,
+                                    &mut tail_scratch,
+                                )
+                            });
+                            let harmless = lone.harmless(model, reqs, &found, timers);
+                            if harmless {
+                                lone.fold_figures(
+                                    &mut res, model, pre, reqs, t2, timers, since_next,
+                                );
+                                end_modes[lone.last_mode] = true;
+                            }
+                            harmless
+                        };
+                        if done {
+                            res.settled += 1;
+                            continue;
+                        }
+                    }
+                    let Some(t) = admit(&mut visited, key(f2, t2, detected), timers) else {
+                        continue;
+                    };
+                    if arena.len() >= cfg.max_states.min(MAX_NODES) {
+                        res.truncated = true;
+                        continue;
+                    }
+                    any_new = true;
+                    next_frontier.push(Joint {
+                        f: f2,
+                        t: t2,
+                        timers: t,
+                        detected,
+                        id: arena.len() as u32,
+                    });
+                    arena.push((node.id, a | if inject_b { 0x80 } else { 0 }, u32::MAX));
                 }
-                let mut child = Node {
-                    st,
-                    plate,
-                    twin: twin_next,
-                    pedal: a,
-                    timers,
-                    since,
-                    step,
-                    origin: node.origin,
-                    detected,
-                    faults: faults_now,
-                    second_in: node.second_in || inject_b,
-                };
-                let k = key(&child, rel, &mut buf, &lists);
-                let Some(t) = admit(&mut visited, k, child.timers) else {
-                    spare = Some(child.st);
-                    continue;
-                };
-                if arena.len() >= cfg.max_states {
-                    res.truncated = true;
-                    spare = Some(child.st);
-                    continue;
-                }
-                child.timers = t;
-                any_new = true;
-                arena.push((my_id, a | if inject_b { 0x80 } else { 0 }, node.origin));
-                next_ids.push((arena.len() - 1) as u32);
-                next_frontier.push(child);
             }
             if !any_new {
-                end_modes[node.st.mode()] = true;
+                end_modes[fg.st[fi].mode()] = true;
             }
         }
         std::mem::swap(&mut frontier, &mut next_frontier);
-        std::mem::swap(&mut frontier_ids, &mut next_ids);
+        since += 1;
     }
     res.states = arena.len();
+    res.faulty_states = fg.nodes();
+    res.truncated |= fg.truncated;
     res.monitors = (0..model.faults.len())
-        .filter(|&f| monitor_seen[f])
+        .filter(|&f| monitor_seen[f / 64] & (1 << (f % 64)) != 0)
         .collect();
     res.end_modes = (0..model.modes.len()).filter(|&m| end_modes[m]).collect();
     // The confirmed violations are states too (a probe's, or one the search stopped short
@@ -1121,105 +1074,282 @@ pub fn search_fault<'v>(
     res
 }
 
-/// The one future of a faulty vehicle the driver no longer steers.
-struct Tail<'a> {
-    vehicle: &'a Vehicle,
-    cone: &'a Cone,
-    reqs: &'a [Req],
-    found: &'a [bool],
-    active: &'a [ActiveFault],
-    /// How far to follow it (the whole horizon: at least what is left of it).
-    steps: u32,
+/// The pedal path from key on to the successor of stored state `id` under pedal `driver`:
+/// the fault-free prefix to the injection, then the joint path. Returns the path, the step the
+/// fault is injected at, and a pair's second fault's step.
+fn joint_path(
+    pre: &PreSet<'_>,
+    arena: &[(u32, u8, u32)],
+    g: &[f64],
+    id: u32,
+    driver: f64,
+    inject_b: bool,
+) -> (Vec<f64>, u32, Option<u32>) {
+    let mut tail = vec![(driver, inject_b)];
+    let mut id = id;
+    let mut origin = 0;
+    while id != u32::MAX {
+        let (parent, pedal, o) = arena[id as usize];
+        if parent == u32::MAX {
+            origin = o;
+            break;
+        }
+        tail.push((g[usize::from(pedal & 0x7f)], pedal & 0x80 != 0));
+        id = parent;
+    }
+    tail.reverse();
+    let mut pedal = pedal_path(pre, origin, g);
+    let inject_step = pedal.len() as u32;
+    let second_step = tail
+        .iter()
+        .position(|&(_, b)| b)
+        .map(|i| inject_step + i as u32);
+    pedal.extend(tail.iter().map(|&(p, _)| p));
+    (pedal, inject_step, second_step)
 }
 
-impl Tail<'_> {
-    /// Whether following the vehicle alone from `st`, `plate` after step `step` breaks no
-    /// requirement not yet found violated, against the worst fault-free twin: closed (so the
-    /// excess is measured from the springs' default) with the driver released from now on.
-    /// `false` as soon as the driver re-enters the cone (a mode change can bring the pedal
-    /// back), so the search then goes on as usual.
-    fn harmless(
-        &self,
-        st: &crate::controller::State,
-        plate: PlantState,
-        step: u32,
-        timers: Timers,
+/// The one future of a faulty vehicle the driver no longer steers, followed once per node of
+/// the faulty graph and summarised so that its verdict can be read for any requirement
+/// timers and any set of requirements already found violated.
+///
+/// It is stepped exactly from the node's first visitor with the driver released, not walked
+/// through the graph: a walk through merged nodes could drift (a slowly settling plate
+/// merged with one at rest) where the vehicle itself does not. The worst fault-free twin is
+/// closed, so the excess is measured from the springs' default.
+#[derive(Clone, Debug)]
+struct LoneFuture {
+    end: LoneEnd,
+    /// One trace per requirement, in order.
+    traces: Vec<LoneTrace>,
+    /// The openings on the way, and the highest of each one's suffix.
+    opens: Vec<f32>,
+    suffix_peak: Vec<f32>,
+    /// The first step (from 1) in a safe mode, when it starts outside one.
+    safe_at: Option<u32>,
+    /// The mode it ends in.
+    last_mode: usize,
+}
+
+#[derive(Clone, Copy, Debug)]
+enum LoneEnd {
+    /// The driver came back into the cone (a mode change can bring the pedal back): the
+    /// search goes on as usual.
+    Reentered,
+    /// Followed to the horizon.
+    Horizon,
+    /// A fixed point: the rest of the future holds this opening for good.
+    Settled(f64),
+}
+
+#[derive(Clone, Copy, Debug)]
+enum LoneTrace {
+    /// Steps above the limit from the start on (the run that continues the excess timer),
+    /// and the longest run after that.
+    Excess { lead: u32, later: u32 },
+    /// Whether the opening ever goes above the ceiling.
+    Never { above: bool },
+    /// The last step (from 1) with the plate above idle, 0 if none.
+    Idle { last: u32 },
+}
+
+impl LoneFuture {
+    /// Follows node `f` for at most `steps` periods.
+    fn follow(
+        fg: &mut Faulty<'_>,
+        model: &Model,
+        reqs: &[Req],
+        f: u32,
+        steps: u32,
         scratch: &mut (crate::controller::Sample, crate::controller::Outputs),
-        cache: &mut ConeCache,
-    ) -> bool {
-        let model = self.vehicle.ctl.model();
+    ) -> LoneFuture {
+        let fi = f as usize;
         let period = model.period;
-        let mut st = st.clone();
+        let vehicle = fg.vehicle();
+        let mut st = fg.st[fi].clone();
         // The state before each step, to see a step that changed nothing in the cone.
         let mut prev = st.clone();
-        let mut plate = plate;
+        let mut plate = fg.plate[fi];
+        let step = fg.step[fi];
+        let faults = fg.faults[fi] as usize;
         let mut positions = vec![0.0; model.sensors.len()];
-        let mut excess = u32::from(timers.excess);
-        let released = u32::from(timers.released);
-        let repeats = !self.time_varying();
-        for k in 0..self.steps {
+        // An intermittent fault changes the inputs with time: no state repeats for good.
+        let repeats = fg.cycle <= 1;
+        let mut traces: Vec<LoneTrace> = reqs
+            .iter()
+            .map(|r| match r {
+                Req::Excess { .. } => LoneTrace::Excess { lead: 0, later: 0 },
+                Req::Never { .. } => LoneTrace::Never { above: false },
+                Req::Idle { .. } => LoneTrace::Idle { last: 0 },
+            })
+            .collect();
+        // The current run above each excess limit, and whether the leading one has ended.
+        let mut runs = vec![(0u32, false); reqs.len()];
+        let mut end = LoneEnd::Horizon;
+        let mut opens = Vec::new();
+        let was_safe = model.modes[st.mode()].is_safe();
+        let mut safe_at = None;
+        for k in 0..steps {
             let now = Time(period.0 * (u64::from(step) + u64::from(k)));
             let before = plate;
             prev.clone_from(&st);
             crate::sim::system::period(
-                self.vehicle,
+                vehicle,
                 &mut st,
                 &mut plate,
                 &mut positions,
-                self.active,
+                &fg.lists.lists[faults],
                 now,
                 period,
                 scratch,
             );
-            if self.cone.cached(cache, model, &st).1 {
-                return false;
+            if fg.cone.cached(&mut fg.cache, model, &st).1 {
+                end = LoneEnd::Reentered;
+                break;
             }
             let open = plate.position;
-            for (r, &f) in self.reqs.iter().zip(self.found) {
-                if f {
-                    continue;
-                }
-                let broken = match *r {
-                    Req::Excess { limit, steps } => {
+            opens.push(open as f32);
+            if !was_safe && safe_at.is_none() && model.modes[st.mode()].is_safe() {
+                safe_at = Some(k + 1);
+            }
+            for ((r, t), run) in reqs.iter().zip(&mut traces).zip(&mut runs) {
+                match (*r, t) {
+                    (Req::Excess { limit, .. }, LoneTrace::Excess { lead, later }) => {
                         if open - model.actuator.default > limit {
-                            excess += 1;
-                            excess > steps
+                            run.0 += 1;
+                            if run.1 {
+                                *later = (*later).max(run.0);
+                            } else {
+                                *lead = run.0;
+                            }
                         } else {
-                            excess = 0;
-                            false
+                            *run = (0, true);
                         }
                     }
-                    Req::Never { above, .. } => open > above,
-                    Req::Idle { idle, steps } => released + k + 1 >= steps && open > idle,
-                };
-                if broken {
-                    return false;
+                    (Req::Never { above: ceiling, .. }, LoneTrace::Never { above }) => {
+                        *above |= open > ceiling;
+                    }
+                    (Req::Idle { idle, .. }, LoneTrace::Idle { last }) => {
+                        if open > idle {
+                            *last = k + 1;
+                        }
+                    }
+                    _ => unreachable!("one trace per requirement, built alike"),
                 }
             }
-            // Settled for good: a step that left the plate at rest where it was and nothing in
-            // the cone changed is a fixed point (the cone's parts evolve by themselves), so
-            // the rest of the future repeats this opening.
-            if repeats && plate == before && plate.velocity == 0.0 && excess == 0 {
-                let (rel, _) = self.cone.cached(cache, model, &prev);
+            // Settled for good: a step that left the plate at rest where it was and nothing
+            // in the cone changed is a fixed point (the cone's parts evolve by themselves).
+            if repeats && plate == before && plate.velocity == 0.0 {
+                let (rel, _) = fg.cone.cached(&mut fg.cache, model, &prev);
                 if st.same_relevant(&prev, rel) {
-                    return !constant_can_violate(model, self.reqs, self.found, open);
+                    end = LoneEnd::Settled(open);
+                    break;
                 }
             }
         }
-        true
+        let mut suffix_peak = opens.clone();
+        for k in (1..suffix_peak.len()).rev() {
+            suffix_peak[k - 1] = suffix_peak[k - 1].max(suffix_peak[k]);
+        }
+        LoneFuture {
+            end,
+            traces,
+            opens,
+            suffix_peak,
+            safe_at,
+            last_mode: st.mode(),
+        }
     }
 
-    /// An intermittent fault changes the inputs with time, so no state repeats for good.
-    fn time_varying(&self) -> bool {
-        self.active.iter().any(|a| {
-            matches!(
-                a.injection,
-                Injection::Track {
-                    fault: TrackFault::Intermittent { .. },
-                    ..
-                }
-            )
-        })
+    /// Folds a harmless future, entered `since` steps after the injection with `timers`
+    /// beside twin `t`, into the figures of the matrix, as if the search had gone on. The
+    /// excess is worst when the twin closes fastest, so the twin is walked along the
+    /// fault-free set with the driver easing off each step, for as long as the future's
+    /// openings can still raise a figure.
+    #[allow(clippy::too_many_arguments)]
+    fn fold_figures(
+        &self,
+        res: &mut FaultResult,
+        model: &Model,
+        pre: &PreSet<'_>,
+        reqs: &[Req],
+        t: u32,
+        timers: Timers,
+        since: u32,
+    ) {
+        let period = model.period;
+        let d = |n: u32| Time(period.0 * u64::from(n));
+        let default = model.actuator.default;
+        if let Some(&peak) = self.suffix_peak.first() {
+            res.worst_opening_below_ceiling = res.worst_opening_below_ceiling.max(f64::from(peak));
+        }
+        if let Some(k) = self.safe_at {
+            let at = d(since + k);
+            res.to_safe = Some(res.to_safe.map_or(at, |w| w.max(at)));
+        }
+        for (r, tr) in reqs.iter().zip(&self.traces) {
+            if let (Req::Idle { .. }, LoneTrace::Idle { last }) = (*r, *tr)
+                && last > 0
+            {
+                // The driver released from now on: at most the few steps the pedal takes to
+                // reach 0 % more than any driver.
+                let at = d(u32::from(timers.released) + last);
+                res.worst_idle_after_release = res.worst_idle_after_release.max(at);
+            }
+        }
+        let limit = reqs
+            .iter()
+            .filter_map(|r| match *r {
+                Req::Excess { limit, .. } => Some(limit),
+                _ => None,
+            })
+            .fold(f64::INFINITY, f64::min);
+        let mut tw = t;
+        let mut run = u32::from(timers.excess);
+        for (&open, &rest) in self.opens.iter().zip(&self.suffix_peak) {
+            // Nothing further on can raise the worst excess or extend a run above a limit.
+            if f64::from(rest) - default <= res.worst_excess.min(limit) {
+                break;
+            }
+            tw = pre.release[tw as usize];
+            let ex = f64::from(open) - pre.opening[tw as usize].max(default);
+            res.worst_excess = res.worst_excess.max(ex);
+            if ex > limit {
+                run += 1;
+                res.worst_excess_duration = res.worst_excess_duration.max(d(run));
+            } else {
+                run = 0;
+            }
+        }
+    }
+
+    /// Whether this future breaks no requirement not yet `found` violated, when it starts
+    /// with the requirement timers `timers`.
+    fn harmless(&self, model: &Model, reqs: &[Req], found: &[bool], timers: Timers) -> bool {
+        if matches!(self.end, LoneEnd::Reentered) {
+            return false;
+        }
+        let broken = reqs
+            .iter()
+            .zip(&self.traces)
+            .zip(found)
+            .any(|((r, t), &done)| {
+                !done
+                    && match (*r, *t) {
+                        (Req::Excess { steps, .. }, LoneTrace::Excess { lead, later }) => {
+                            u32::from(timers.excess) + lead > steps || later > steps
+                        }
+                        (Req::Never { .. }, LoneTrace::Never { above }) => above,
+                        (Req::Idle { steps, .. }, LoneTrace::Idle { last }) => {
+                            last > 0 && u32::from(timers.released) + last >= steps
+                        }
+                        _ => unreachable!("one trace per requirement, built alike"),
+                    }
+            });
+        match self.end {
+            _ if broken => false,
+            LoneEnd::Settled(open) => !constant_can_violate(model, reqs, found, open),
+            _ => true,
+        }
     }
 }
 
@@ -1233,10 +1363,6 @@ fn constant_can_violate(model: &Model, reqs: &[Req], found: &[bool], open: f64) 
             Req::Idle { idle, .. } => open > idle,
         }
     })
-}
-
-fn gcd(a: u32, b: u32) -> u32 {
-    if b == 0 { a.max(1) } else { gcd(b, a % b) }
 }
 
 #[cfg(test)]

@@ -1,0 +1,286 @@
+//! The faulty vehicle's own transition graph, for one fault (or pair), built lazily and
+//! memoised. Its nodes are the faulty vehicle's states told apart at the resolution (the
+//! controller's memory within its cone of influence, the plate, what the faults captured, an
+//! intermittent fault's phase, the pedal, a pair's progress); each stands for the first visitor
+//! with that encoding, exactly as the fault-free set's nodes do. A node's successor under a
+//! driver action is stepped once, with the controller step and plant the simulator uses, and
+//! then looked up: the joint search (faulty beside fault-free) walks the product of this graph
+//! and the fault-free set without stepping a controller again.
+
+use super::Config;
+use super::cone::{Cone, ConeCache};
+use super::search::{FaultLists, PassThrough, break_into, digest, grid, quantise};
+use crate::controller::{Outputs, Sample, State};
+use crate::faults::{Injection, TrackFault};
+use crate::plant::PlantState;
+use crate::sim::system::Vehicle;
+use crate::time::Time;
+use std::collections::HashMap;
+use std::hash::BuildHasherDefault;
+
+/// A successor not stepped yet.
+const UNKNOWN: u32 = u32::MAX;
+/// A successor that would have been a new node past the bound on states.
+pub const DROPPED: u32 = u32::MAX - 1;
+
+/// The faulty vehicle's graph. Node `i`'s parts are the `i`-th entries of the vectors.
+pub struct Faulty<'a> {
+    vehicle: &'a Vehicle,
+    inj: &'a [Injection],
+    resolution: f64,
+    grid: Vec<f64>,
+    /// Steps in an intermittent fault's cycle (1 when there is none).
+    pub cycle: u32,
+    /// Successor slots per node: each pedal action, with and without a pair's second fault.
+    stride: usize,
+    pair: bool,
+    max: usize,
+    pub st: Vec<State>,
+    pub plate: Vec<PlantState>,
+    /// Index into `lists`.
+    pub faults: Vec<u32>,
+    /// The absolute step of the node's first visitor (the next step happens at this instant).
+    pub step: Vec<u32>,
+    /// Steps since the injection, modulo `cycle`.
+    phase: Vec<u32>,
+    pub pedal: Vec<u8>,
+    pub second_in: Vec<bool>,
+    /// Whether the driver's sensor is in the node's cone of influence.
+    pub driver_in: Vec<bool>,
+    /// Monitors set, `words` 64-bit words per node.
+    masks: Vec<u64>,
+    words: usize,
+    succ: Vec<u32>,
+    index: HashMap<u128, u32, BuildHasherDefault<PassThrough>>,
+    pub lists: FaultLists,
+    /// A pair's second fault broken into a list: (list before, captured, phase origin) -> list.
+    list_index: HashMap<(u32, u64, u64), u32>,
+    pub cone: Cone,
+    pub cache: ConeCache,
+    scratch: (Sample, Outputs),
+    positions: Vec<f64>,
+    spare: Option<State>,
+    buf: Vec<u8>,
+    /// A new node was refused at the bound.
+    pub truncated: bool,
+}
+
+impl<'a> Faulty<'a> {
+    pub fn new(
+        vehicle: &'a Vehicle,
+        inj: &'a [Injection],
+        cfg: &Config,
+        sample: Sample,
+        max: usize,
+    ) -> Faulty<'a> {
+        let model = vehicle.ctl.model();
+        let period = model.period;
+        let g = grid(cfg);
+        let pair = inj.len() > 1;
+        let actions = if cfg.free_pedal { g.len() } else { 3 };
+        let cycle: u32 = inj
+            .iter()
+            .filter_map(|i| match i {
+                Injection::Track {
+                    fault: TrackFault::Intermittent { every, .. },
+                    ..
+                } => Some(
+                    u32::try_from(every.0.div_ceil(period.0.max(1)))
+                        .unwrap_or(1)
+                        .max(1),
+                ),
+                _ => None,
+            })
+            .fold(1, |a, b| a / gcd(a, b) * b);
+        Faulty {
+            vehicle,
+            inj,
+            resolution: cfg.resolution,
+            grid: g,
+            cycle,
+            stride: actions * (1 + usize::from(pair)),
+            pair,
+            max,
+            st: Vec::new(),
+            plate: Vec::new(),
+            faults: Vec::new(),
+            step: Vec::new(),
+            phase: Vec::new(),
+            pedal: Vec::new(),
+            second_in: Vec::new(),
+            driver_in: Vec::new(),
+            masks: Vec::new(),
+            words: model.faults.len().div_ceil(64).max(1),
+            succ: Vec::new(),
+            index: HashMap::default(),
+            lists: FaultLists::new(cfg.resolution),
+            list_index: HashMap::new(),
+            cone: Cone::new(model),
+            cache: ConeCache::default(),
+            scratch: (sample, Outputs::default()),
+            positions: vec![0.0; model.sensors.len()],
+            spare: None,
+            buf: Vec::with_capacity(256),
+            truncated: false,
+        }
+    }
+
+    pub fn vehicle(&self) -> &'a Vehicle {
+        self.vehicle
+    }
+
+    /// Nodes stored so far.
+    pub fn nodes(&self) -> usize {
+        self.st.len()
+    }
+
+    /// The monitors set in node `f`, as 64-bit words.
+    pub fn mask(&self, f: u32) -> &[u64] {
+        let i = f as usize * self.words;
+        &self.masks[i..i + self.words]
+    }
+
+    /// The node for a faulty vehicle in this state: an existing one with the same encoding
+    /// (the state is given back to be reused), a new one, or [`DROPPED`] at the bound.
+    #[allow(clippy::too_many_arguments)]
+    pub fn intern(
+        &mut self,
+        st: State,
+        plate: PlantState,
+        faults: u32,
+        step: u32,
+        phase: u32,
+        pedal: u8,
+        second_in: bool,
+    ) -> u32 {
+        let model = self.vehicle.ctl.model();
+        let (rel, driver_in) = {
+            let c = self.cone.cached(&mut self.cache, model, &st);
+            (&c.0, c.1)
+        };
+        self.buf.clear();
+        // The key: the controller's memory within the cone (continuous parts quantised),
+        // the plate, what the faults captured, an intermittent fault's phase, the pedal and a
+        // pair's progress.
+        st.encode_relevant(model, self.resolution, rel, &mut self.buf);
+        let q = |v: f64, r: f64| quantise(v, r).to_le_bytes();
+        self.buf
+            .extend_from_slice(&q(plate.position, self.resolution));
+        // Velocities up to a few thousand %/s: quantised at 40 resolutions per second.
+        self.buf
+            .extend_from_slice(&q(plate.velocity, self.resolution * 40.0));
+        for c in &self.lists.captured[faults as usize] {
+            self.buf.extend_from_slice(&c.to_le_bytes());
+        }
+        self.buf.extend_from_slice(&phase.to_le_bytes());
+        self.buf.push(pedal);
+        self.buf.push(u8::from(second_in));
+        let k = digest(&self.buf);
+        if let Some(&i) = self.index.get(&k) {
+            self.spare = Some(st);
+            return i;
+        }
+        if self.st.len() >= self.max {
+            self.truncated = true;
+            self.spare = Some(st);
+            return DROPPED;
+        }
+        let i = self.st.len() as u32;
+        self.index.insert(k, i);
+        for w in 0..self.words {
+            let mut m = 0u64;
+            for b in 0..64 {
+                let f = w * 64 + b;
+                if f < model.faults.len() && st.fault_set(f) {
+                    m |= 1 << b;
+                }
+            }
+            self.masks.push(m);
+        }
+        self.driver_in.push(driver_in);
+        self.st.push(st);
+        self.plate.push(plate);
+        self.faults.push(faults);
+        self.step.push(step);
+        self.phase.push(phase);
+        self.pedal.push(pedal);
+        self.second_in.push(second_in);
+        self.succ.extend(std::iter::repeat_n(UNKNOWN, self.stride));
+        i
+    }
+
+    /// The successor of node `f` when the driver takes action `ai` (to grid index `a`), with
+    /// a pair's second fault arriving at the step's start when `inject_b`.
+    pub fn succ(&mut self, f: u32, ai: usize, a: u8, inject_b: bool) -> u32 {
+        let slot =
+            f as usize * self.stride + ai * (1 + usize::from(self.pair)) + usize::from(inject_b);
+        let known = self.succ[slot];
+        if known != UNKNOWN {
+            return known;
+        }
+        let model = self.vehicle.ctl.model();
+        let fi = f as usize;
+        let now = Time(model.period.0 * u64::from(self.step[fi]));
+        let mut st = match self.spare.take() {
+            Some(mut s) => {
+                s.clone_from(&self.st[fi]);
+                s
+            }
+            None => self.st[fi].clone(),
+        };
+        let mut plate = self.plate[fi];
+        let mut faults = self.faults[fi];
+        if inject_b {
+            // The second fault arrives at this step's start, before the pedal moves, as a
+            // script's `break` line before its `pedal` line does.
+            let (list, p) = break_into(
+                model,
+                self.inj[1],
+                now,
+                self.grid[usize::from(self.pedal[fi])],
+                plate,
+                &self.lists.lists[faults as usize],
+            );
+            plate = p;
+            let af = list[list.len() - 1];
+            let origin = if self.cycle > 1 { af.since.0 } else { 0 };
+            let key = (faults, af.captured.to_bits(), origin);
+            faults = match self.list_index.get(&key) {
+                Some(&l) => l,
+                None => {
+                    let l = self.lists.push(list);
+                    self.list_index.insert(key, l);
+                    l
+                }
+            };
+        }
+        if let Some(d) = model.driver {
+            self.positions[d] = self.grid[usize::from(a)];
+        }
+        crate::sim::system::period(
+            self.vehicle,
+            &mut st,
+            &mut plate,
+            &mut self.positions,
+            &self.lists.lists[faults as usize],
+            now,
+            model.period,
+            &mut self.scratch,
+        );
+        let next = self.intern(
+            st,
+            plate,
+            faults,
+            self.step[fi] + 1,
+            (self.phase[fi] + 1) % self.cycle,
+            a,
+            self.second_in[fi] || inject_b,
+        );
+        self.succ[slot] = next;
+        next
+    }
+}
+
+pub fn gcd(a: u32, b: u32) -> u32 {
+    if b == 0 { a.max(1) } else { gcd(b, a % b) }
+}
