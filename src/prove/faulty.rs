@@ -23,6 +23,43 @@ const UNKNOWN: u32 = u32::MAX;
 /// A successor that would have been a new node past the bound on states.
 pub const DROPPED: u32 = u32::MAX - 1;
 
+/// A faulty node as the joint search's inner loop reads it, packed in half a cache line.
+#[derive(Clone, Copy, Debug)]
+pub struct Hot {
+    /// The plate's opening.
+    pub open: f64,
+    /// The first 64 monitors' bits (the rest in `Faulty::mask`).
+    pub mask0: u64,
+    /// Index into `Faulty::lists`.
+    pub faults: u32,
+    pub mode: u32,
+    flags: u8,
+}
+
+impl Hot {
+    const SECOND_IN: u8 = 1;
+    const DRIVER_IN: u8 = 2;
+    const SAFE: u8 = 4;
+    const STUCK: u8 = 8;
+
+    /// A pair's second fault is in (or there is none).
+    pub fn second_in(&self) -> bool {
+        self.flags & Self::SECOND_IN != 0
+    }
+    /// The driver's sensor is in the node's cone of influence.
+    pub fn driver_in(&self) -> bool {
+        self.flags & Self::DRIVER_IN != 0
+    }
+    /// The node's mode is a safe one.
+    pub fn safe(&self) -> bool {
+        self.flags & Self::SAFE != 0
+    }
+    /// Its faults hold the plate stuck.
+    pub fn stuck(&self) -> bool {
+        self.flags & Self::STUCK != 0
+    }
+}
+
 /// The faulty vehicle's graph. Node `i`'s parts are the `i`-th entries of the vectors.
 pub struct Faulty<'a> {
     vehicle: &'a Vehicle,
@@ -37,16 +74,13 @@ pub struct Faulty<'a> {
     max: usize,
     pub st: Vec<State>,
     pub plate: Vec<PlantState>,
-    /// Index into `lists`.
-    pub faults: Vec<u32>,
     /// The absolute step of the node's first visitor (the next step happens at this instant).
     pub step: Vec<u32>,
     /// Steps since the injection, modulo `cycle`.
     phase: Vec<u32>,
     pub pedal: Vec<u8>,
-    pub second_in: Vec<bool>,
-    /// Whether the driver's sensor is in the node's cone of influence.
-    pub driver_in: Vec<bool>,
+    /// What the joint search reads of each node, packed.
+    pub hot: Vec<Hot>,
     /// Monitors set, `words` 64-bit words per node.
     masks: Vec<u64>,
     words: usize,
@@ -103,12 +137,10 @@ impl<'a> Faulty<'a> {
             max,
             st: Vec::new(),
             plate: Vec::new(),
-            faults: Vec::new(),
             step: Vec::new(),
             phase: Vec::new(),
             pedal: Vec::new(),
-            second_in: Vec::new(),
-            driver_in: Vec::new(),
+            hot: Vec::new(),
             masks: Vec::new(),
             words: model.faults.len().div_ceil(64).max(1),
             succ: Vec::new(),
@@ -197,14 +229,22 @@ impl<'a> Faulty<'a> {
             }
             self.masks.push(m);
         }
-        self.driver_in.push(driver_in);
+        let flag = |b: bool, f: u8| if b { f } else { 0 };
+        self.hot.push(Hot {
+            open: plate.position,
+            mask0: self.masks[i as usize * self.words],
+            faults,
+            mode: st.mode() as u32,
+            flags: flag(second_in, Hot::SECOND_IN)
+                | flag(driver_in, Hot::DRIVER_IN)
+                | flag(model.modes[st.mode()].is_safe(), Hot::SAFE)
+                | flag(self.lists.stuck[faults as usize], Hot::STUCK),
+        });
         self.st.push(st);
         self.plate.push(plate);
-        self.faults.push(faults);
         self.step.push(step);
         self.phase.push(phase);
         self.pedal.push(pedal);
-        self.second_in.push(second_in);
         self.succ.extend(std::iter::repeat_n(UNKNOWN, self.stride));
         i
     }
@@ -229,7 +269,7 @@ impl<'a> Faulty<'a> {
             None => self.st[fi].clone(),
         };
         let mut plate = self.plate[fi];
-        let mut faults = self.faults[fi];
+        let mut faults = self.hot[fi].faults;
         if inject_b {
             // The second fault arrives at this step's start, before the pedal moves, as a
             // script's `break` line before its `pedal` line does.
@@ -274,7 +314,7 @@ impl<'a> Faulty<'a> {
             self.step[fi] + 1,
             (self.phase[fi] + 1) % self.cycle,
             a,
-            self.second_in[fi] || inject_b,
+            self.hot[fi].second_in() || inject_b,
         );
         self.succ[slot] = next;
         next

@@ -103,23 +103,41 @@ pub struct PreSet<'v> {
     pub nodes: Vec<PreNode<'v>>,
     /// Whether the bound on states was hit before closure.
     pub truncated: bool,
-    /// Per node, a dense class of its quantised plate (opening and speed): the twin's part of
-    /// a joint key when the twin is paired by its plate alone.
-    pub plate_class: Vec<u32>,
-    /// Per node, the plate's opening, and the successor when the driver eases off fastest
-    /// (the first action): compact copies for the search's inner loop.
-    pub opening: Vec<f64>,
-    pub release: Vec<u32>,
-    /// Per node, the monitors set, `words` 64-bit words each.
+    /// Per node, what the joint search reads of a twin, packed (see [`PreHot`]).
+    pub hot: Vec<PreHot>,
+    /// Per node, the successor under each action, `stride` slots each (a node at the grid's
+    /// edge has fewer actions: its spare slots hold itself).
+    succ: Vec<u32>,
+    stride: usize,
+    /// Per node, the monitors set, `words` 64-bit words each; `any_mask` when one is set
+    /// anywhere (the fault-free van sets none).
     masks: Vec<u64>,
     words: usize,
+    any_mask: bool,
+}
+
+/// A fault-free node as the joint search's inner loop reads it, in one cache line's quarter.
+#[derive(Clone, Copy, Debug)]
+pub struct PreHot {
+    /// The plate's opening.
+    pub opening: f64,
+    /// A dense class of its quantised plate (opening and speed): the twin's part of a joint
+    /// key when the twin is paired by its plate alone.
+    pub class: u32,
+    /// The successor when the driver eases off fastest (the first action).
+    pub release: u32,
 }
 
 impl PreSet<'_> {
-    /// The monitors set in node `t`, as 64-bit words.
-    pub fn mask(&self, t: u32) -> &[u64] {
+    /// The monitors set in node `t`, as 64-bit words, or `None` when the set has none.
+    pub fn mask(&self, t: u32) -> Option<&[u64]> {
         let i = t as usize * self.words;
-        &self.masks[i..i + self.words]
+        self.any_mask.then(|| &self.masks[i..i + self.words])
+    }
+
+    /// The successor of node `t` under the `ai`-th action.
+    pub fn step(&self, t: u32, ai: usize) -> u32 {
+        self.succ[t as usize * self.stride + ai]
     }
 }
 
@@ -274,10 +292,10 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
     let words = model.faults.len().div_ceil(64).max(1);
     let mut masks = Vec::with_capacity(nodes.len() * words);
     let mut classes: std::collections::HashMap<(i32, i32), u32> = Default::default();
-    let mut plate_class = Vec::with_capacity(nodes.len());
-    let opening = nodes.iter().map(|n| n.sys.opening()).collect();
-    let release = nodes.iter().map(|n| n.succ[0]).collect();
-    for n in &nodes {
+    let mut hot = Vec::with_capacity(nodes.len());
+    let stride = if cfg.free_pedal { g.len() } else { 3 };
+    let mut flat = Vec::with_capacity(nodes.len() * stride);
+    for (i, n) in nodes.iter().enumerate() {
         for w in 0..words {
             let mut m = 0u64;
             for b in 0..64 {
@@ -294,16 +312,23 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
             quantise(p.velocity, cfg.resolution * 40.0),
         );
         let next = classes.len() as u32;
-        plate_class.push(*classes.entry(c).or_insert(next));
+        hot.push(PreHot {
+            opening: n.sys.opening(),
+            class: *classes.entry(c).or_insert(next),
+            release: n.succ[0],
+        });
+        flat.extend((0..stride).map(|a| n.succ.get(a).copied().unwrap_or(i as u32)));
     }
+    let any_mask = masks.iter().any(|&m| m != 0);
     PreSet {
         nodes,
         truncated,
-        plate_class,
-        opening,
-        release,
+        hot,
+        succ: flat,
+        stride,
         masks,
         words,
+        any_mask,
     }
 }
 
@@ -681,28 +706,61 @@ struct Joint {
     id: u32,
 }
 
-/// A fast hasher for the joint visited set's packed 64-bit keys.
+/// A fast hasher for packed 64-bit keys.
+///
+/// With `near`, a joint key's two halves hash apart: the faulty node's half picks the
+/// neighbourhood (all but the lowest six bits of the bucket index) and the twin's half the
+/// bucket within it and the tag. The search takes its frontier sorted by faulty node, so the
+/// probes for one node's successors beside many twins stay within a few cache lines. Only
+/// for a twin half with few values per faulty node (the plate classes): thousands of exact
+/// twins per node would crowd one neighbourhood.
 #[derive(Default)]
-pub struct MixU64(u64);
+pub struct MixU64 {
+    key: u64,
+    near: bool,
+}
 
 impl Hasher for MixU64 {
     fn finish(&self) -> u64 {
-        let mut z = self.0;
-        z = (z ^ (z >> 32)).wrapping_mul(0xd6e8_feb8_6659_fd93);
-        z ^ (z >> 32)
+        let mix = |mut z: u64| {
+            z = (z ^ (z >> 32)).wrapping_mul(0xd6e8_feb8_6659_fd93);
+            z ^ (z >> 32)
+        };
+        if self.near {
+            let (hi, lo) = (mix(self.key >> 32), mix(self.key & 0xffff_ffff));
+            (hi & !0x3f) ^ (lo & 0x3f) ^ (lo & (0x7f << 57))
+        } else {
+            mix(self.key)
+        }
     }
     fn write(&mut self, bytes: &[u8]) {
         for &b in bytes {
-            self.0 = self.0.rotate_left(8) ^ u64::from(b);
+            self.key = self.key.rotate_left(8) ^ u64::from(b);
         }
     }
     fn write_u64(&mut self, i: u64) {
-        self.0 ^= i;
+        self.key ^= i;
+    }
+}
+
+/// Builds [`MixU64`] hashers, near or not.
+#[derive(Clone, Copy, Default)]
+pub struct JointHash {
+    near: bool,
+}
+
+impl std::hash::BuildHasher for JointHash {
+    type Hasher = MixU64;
+    fn build_hasher(&self) -> MixU64 {
+        MixU64 {
+            key: 0,
+            near: self.near,
+        }
     }
 }
 
 /// Visited joint states, by packed key, with the requirement timers each was reached with.
-type JointVisited = std::collections::HashMap<u64, Timers, BuildHasherDefault<MixU64>>;
+type JointVisited = std::collections::HashMap<u64, Timers, JointHash>;
 
 /// Searches one fault, or a pair: the first of a pair is injected into every fault-free
 /// state, the second arrives at a later step the search chooses.
@@ -747,7 +805,9 @@ pub fn search_fault<'v>(
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         ..FaultResult::default()
     };
-    let mut visited = JointVisited::default();
+    let mut visited = JointVisited::with_hasher(JointHash {
+        near: !cfg.exact_twin,
+    });
     // The lone futures of vehicles the driver no longer steers, by faulty node (see
     // `LoneFuture`).
     let mut tails: std::collections::HashMap<u32, LoneFuture, BuildHasherDefault<MixU64>> =
@@ -764,7 +824,7 @@ pub fn search_fault<'v>(
         if cfg.exact_twin {
             u64::from(t)
         } else {
-            u64::from(pre.plate_class[t as usize])
+            u64::from(pre.hot[t as usize].class)
         }
     };
     let key = |f: u32, t: u32, detected: bool| -> u64 {
@@ -851,20 +911,18 @@ pub fn search_fault<'v>(
             }
             let fi = node.f as usize;
             if since >= horizon {
-                end_modes[fg.st[fi].mode()] = true;
+                end_modes[fg.hot[fi].mode as usize] = true;
                 if !node.detected {
                     res.undetected_branch = true;
                 }
                 continue;
             }
-            let pedal = fg.pedal[fi];
-            let second_in = fg.second_in[fi];
-            actions(cfg, pedal, g.len(), &mut acts);
-            let twin = &pre.nodes[node.t as usize];
+            let here = fg.hot[fi];
+            actions(cfg, fg.pedal[fi], g.len(), &mut acts);
             let mut any_new = false;
             for (ai, &a) in acts.iter().enumerate() {
                 for inject_b in [false, true] {
-                    if inject_b && second_in {
+                    if inject_b && here.second_in() {
                         continue;
                     }
                     let f2 = fg.succ(node.f, ai, a, inject_b);
@@ -872,10 +930,10 @@ pub fn search_fault<'v>(
                         res.truncated = true;
                         continue;
                     }
-                    let f2i = f2 as usize;
-                    let t2 = twin.succ.get(ai).copied().unwrap_or(node.t);
+                    let there = fg.hot[f2 as usize];
+                    let t2 = pre.step(node.t, ai);
                     let driver = g[usize::from(a)];
-                    let (open, open_n) = (fg.plate[f2i].position, pre.opening[t2 as usize]);
+                    let (open, open_n) = (there.open, pre.hot[t2 as usize].opening);
                     let mut timers = node.timers;
                     timers.released = if a == 0 {
                         (timers.released + 1).min(release_cap)
@@ -887,8 +945,9 @@ pub fn search_fault<'v>(
                     // Monitors and detection: set in the faulty vehicle, not in its twin.
                     let mut detected = node.detected;
                     let tw_mask = pre.mask(t2);
-                    for ((seen, &m), &n) in monitor_seen.iter_mut().zip(fg.mask(f2)).zip(tw_mask) {
-                        let new = m & !n;
+                    for (w, seen) in monitor_seen.iter_mut().enumerate() {
+                        let m = if w == 0 { there.mask0 } else { fg.mask(f2)[w] };
+                        let new = m & !tw_mask.map_or(0, |n| n[w]);
                         if new != 0 {
                             *seen |= new;
                             if !detected {
@@ -899,9 +958,7 @@ pub fn search_fault<'v>(
                             }
                         }
                     }
-                    if model.modes[fg.st[f2i].mode()].is_safe()
-                        && !model.modes[fg.st[fi].mode()].is_safe()
-                    {
+                    if there.safe() && !here.safe() {
                         let t = Time(period.0 * u64::from(since_next));
                         res.to_safe = Some(res.to_safe.map_or(t, |w| w.max(t)));
                     }
@@ -982,15 +1039,14 @@ pub fn search_fault<'v>(
                     // it alone and, if no open requirement can be broken by it against the
                     // worst twin (closed, the driver released), the branch is done. A stuck
                     // plate is constant.
-                    if fg.second_in[f2i] {
-                        let faults = fg.faults[f2i] as usize;
-                        let done = if fg.lists.stuck[faults] {
+                    if there.second_in() {
+                        let done = if there.stuck() {
                             let held = !constant_can_violate(model, reqs, &found, open);
                             if held {
-                                end_modes[fg.st[f2i].mode()] = true;
+                                end_modes[there.mode as usize] = true;
                             }
                             held
-                        } else if fg.driver_in[f2i] {
+                        } else if there.driver_in() {
                             false
                         } else {
                             let lone = tails.entry(f2).or_insert_with(|| {
@@ -1036,10 +1092,13 @@ pub fn search_fault<'v>(
                 }
             }
             if !any_new {
-                end_modes[fg.st[fi].mode()] = true;
+                end_modes[here.mode as usize] = true;
             }
         }
         std::mem::swap(&mut frontier, &mut next_frontier);
+        // Nodes beside the same faulty node one after the other: their successors share the
+        // faulty graph's rows and, with a near hash, the visited set's cache lines.
+        frontier.sort_by_key(|j| j.f);
         since += 1;
     }
     res.states = arena.len();
@@ -1170,7 +1229,7 @@ impl LoneFuture {
         let mut prev = st.clone();
         let mut plate = fg.plate[fi];
         let step = fg.step[fi];
-        let faults = fg.faults[fi] as usize;
+        let faults = fg.hot[fi].faults as usize;
         let mut positions = vec![0.0; model.sensors.len()];
         // An intermittent fault changes the inputs with time: no state repeats for good.
         let repeats = fg.cycle <= 1;
@@ -1310,8 +1369,8 @@ impl LoneFuture {
             if f64::from(rest) - default <= res.worst_excess.min(limit) {
                 break;
             }
-            tw = pre.release[tw as usize];
-            let ex = f64::from(open) - pre.opening[tw as usize].max(default);
+            tw = pre.hot[tw as usize].release;
+            let ex = f64::from(open) - pre.hot[tw as usize].opening.max(default);
             res.worst_excess = res.worst_excess.max(ex);
             if ex > limit {
                 run += 1;
