@@ -3,6 +3,7 @@
 //! Data flows one way: text -> `lang` (AST with spans) -> `model` (resolved IR) -> analysis,
 //! the pure `controller` step driven by `sim` or `prove`, and `diff` over two models.
 
+pub mod alloc;
 pub mod analysis;
 pub mod app;
 pub mod approve;

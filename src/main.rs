@@ -5,6 +5,9 @@ use limpet::app::{self, Exit, Format, Outcome};
 use std::io::Write;
 use std::process::ExitCode;
 
+#[global_allocator]
+static ALLOC: limpet::alloc::HugeHint = limpet::alloc::HugeHint;
+
 /// Design, prove and review the limp-home policy of a drive-by-wire throttle.
 ///
 /// Exit status: 0 all holds; 1 a finding, a failed expectation or a violated requirement;

@@ -249,6 +249,18 @@ impl<'a> Faulty<'a> {
         i
     }
 
+    /// The successors of node `f` stepped already without a pair's second fault arriving, by
+    /// action index.
+    pub fn known(&self, f: u32) -> impl Iterator<Item = (usize, u32)> + '_ {
+        let per = 1 + usize::from(self.pair);
+        let row = &self.succ[f as usize * self.stride..(f as usize + 1) * self.stride];
+        row.iter()
+            .step_by(per)
+            .enumerate()
+            .filter(|&(_, &s)| s != UNKNOWN && s != DROPPED)
+            .map(|(ai, &s)| (ai, s))
+    }
+
     /// The successor of node `f` when the driver takes action `ai` (to grid index `a`), with
     /// a pair's second fault arriving at the step's start when `inject_b`.
     pub fn succ(&mut self, f: u32, ai: usize, a: u8, inject_b: bool) -> u32 {

@@ -3,6 +3,7 @@
 
 pub mod cone;
 pub mod faulty;
+pub mod joint;
 pub mod report;
 pub mod search;
 pub mod space;

@@ -6,6 +6,7 @@
 //! before is not expanded again.
 
 use super::faulty::{DROPPED, Faulty};
+use super::joint::JointSet;
 use super::{Config, Requirement as Req};
 use crate::faults::{ActiveFault, Injection};
 use crate::model::Model;
@@ -662,37 +663,8 @@ impl FaultLists {
     }
 }
 
-/// Visited joint states with the requirement timers each was reached with (see [`admit`]).
-pub type VisitedTimers = std::collections::HashMap<u128, Timers, BuildHasherDefault<PassThrough>>;
-
-/// Records a state in the visited set. Its requirement timers take part by dominance rather
-/// than in the key: a state seen before with timers at least as far on (closer to a
-/// violation) covers the new one, which is dropped (`None`). Otherwise the stored timers
-/// become the larger of the two in each, and the state goes on with them: an
-/// over-approximation, on the side of finding violations (each is confirmed by an exact replay
-/// before it is reported).
-fn admit<K: std::hash::Hash + Eq, S: std::hash::BuildHasher>(
-    visited: &mut std::collections::HashMap<K, Timers, S>,
-    k: K,
-    t: Timers,
-) -> Option<Timers> {
-    match visited.entry(k) {
-        std::collections::hash_map::Entry::Occupied(mut e) => {
-            let old = e.get_mut();
-            if old.excess >= t.excess && old.released >= t.released {
-                None
-            } else {
-                old.excess = old.excess.max(t.excess);
-                old.released = old.released.max(t.released);
-                Some(*old)
-            }
-        }
-        std::collections::hash_map::Entry::Vacant(e) => {
-            e.insert(t);
-            Some(t)
-        }
-    }
-}
+/// How many states ahead the search announces its visited-set lookups.
+const LOOKAHEAD: usize = 4;
 
 /// A joint state of the search: a node of the faulty vehicle's graph, its fault-free twin in
 /// the pre-fault set, the requirement timers, whether a monitor has set since injection, and
@@ -706,61 +678,25 @@ struct Joint {
     id: u32,
 }
 
-/// A fast hasher for packed 64-bit keys.
-///
-/// With `near`, a joint key's two halves hash apart: the faulty node's half picks the
-/// neighbourhood (all but the lowest six bits of the bucket index) and the twin's half the
-/// bucket within it and the tag. The search takes its frontier sorted by faulty node, so the
-/// probes for one node's successors beside many twins stay within a few cache lines. Only
-/// for a twin half with few values per faulty node (the plate classes): thousands of exact
-/// twins per node would crowd one neighbourhood.
+/// A fast hasher for small integer keys (the lone futures' faulty nodes).
 #[derive(Default)]
-pub struct MixU64 {
-    key: u64,
-    near: bool,
-}
+pub struct MixU64(u64);
 
 impl Hasher for MixU64 {
     fn finish(&self) -> u64 {
-        let mix = |mut z: u64| {
-            z = (z ^ (z >> 32)).wrapping_mul(0xd6e8_feb8_6659_fd93);
-            z ^ (z >> 32)
-        };
-        if self.near {
-            let (hi, lo) = (mix(self.key >> 32), mix(self.key & 0xffff_ffff));
-            (hi & !0x3f) ^ (lo & 0x3f) ^ (lo & (0x7f << 57))
-        } else {
-            mix(self.key)
-        }
+        let mut z = self.0;
+        z = (z ^ (z >> 32)).wrapping_mul(0xd6e8_feb8_6659_fd93);
+        z ^ (z >> 32)
     }
     fn write(&mut self, bytes: &[u8]) {
         for &b in bytes {
-            self.key = self.key.rotate_left(8) ^ u64::from(b);
+            self.0 = self.0.rotate_left(8) ^ u64::from(b);
         }
     }
-    fn write_u64(&mut self, i: u64) {
-        self.key ^= i;
+    fn write_u32(&mut self, i: u32) {
+        self.0 ^= u64::from(i);
     }
 }
-
-/// Builds [`MixU64`] hashers, near or not.
-#[derive(Clone, Copy, Default)]
-pub struct JointHash {
-    near: bool,
-}
-
-impl std::hash::BuildHasher for JointHash {
-    type Hasher = MixU64;
-    fn build_hasher(&self) -> MixU64 {
-        MixU64 {
-            key: 0,
-            near: self.near,
-        }
-    }
-}
-
-/// Visited joint states, by packed key, with the requirement timers each was reached with.
-type JointVisited = std::collections::HashMap<u64, Timers, JointHash>;
 
 /// Searches one fault, or a pair: the first of a pair is injected into every fault-free
 /// state, the second arrives at a later step the search chooses.
@@ -805,9 +741,7 @@ pub fn search_fault<'v>(
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         ..FaultResult::default()
     };
-    let mut visited = JointVisited::with_hasher(JointHash {
-        near: !cfg.exact_twin,
-    });
+    let mut visited = JointSet::default();
     // The lone futures of vehicles the driver no longer steers, by faulty node (see
     // `LoneFuture`).
     let mut tails: std::collections::HashMap<u32, LoneFuture, BuildHasherDefault<MixU64>> =
@@ -874,7 +808,7 @@ pub fn search_fault<'v>(
             excess: 0,
             released: o.released,
         };
-        if admit(&mut visited, key(f, oi as u32, false), timers).is_some() {
+        if visited.admit(key(f, oi as u32, false), timers).is_some() {
             frontier.push(Joint {
                 f,
                 t: oi as u32,
@@ -904,10 +838,17 @@ pub fn search_fault<'v>(
     let mut since = 0u32;
     'search: while !frontier.is_empty() {
         next_frontier.clear();
-        for node in &frontier {
+        for (k, node) in frontier.iter().enumerate() {
             if all_found(&found) {
                 res.settled_early = true;
                 break 'search;
+            }
+            // The visited slots of a state a few places ahead, where its successors are
+            // known already: their cache misses overlap with this state's work.
+            if let Some(ahead) = frontier.get(k + LOOKAHEAD) {
+                for (ai, f2) in fg.known(ahead.f) {
+                    visited.prefetch(key(f2, pre.step(ahead.t, ai), ahead.detected));
+                }
             }
             let fi = node.f as usize;
             if since >= horizon {
@@ -1073,7 +1014,7 @@ pub fn search_fault<'v>(
                             continue;
                         }
                     }
-                    let Some(t) = admit(&mut visited, key(f2, t2, detected), timers) else {
+                    let Some(t) = visited.admit(key(f2, t2, detected), timers) else {
                         continue;
                     };
                     if arena.len() >= cfg.max_states.min(MAX_NODES) {
@@ -1096,8 +1037,8 @@ pub fn search_fault<'v>(
             }
         }
         std::mem::swap(&mut frontier, &mut next_frontier);
-        // Nodes beside the same faulty node one after the other: their successors share the
-        // faulty graph's rows and, with a near hash, the visited set's cache lines.
+        // Nodes beside the same faulty node one after the other: they share the faulty
+        // graph's rows.
         frontier.sort_by_key(|j| j.f);
         since += 1;
     }
@@ -1458,20 +1399,5 @@ mod tests {
         );
         assert_ne!(x >> 64, y >> 64);
         assert_ne!(x as u64, y as u64);
-    }
-
-    #[test]
-    fn timers_take_part_by_dominance() {
-        let mut v = VisitedTimers::default();
-        let t = |excess, released| Timers { excess, released };
-        assert_eq!(admit(&mut v, 7, t(3, 10)), Some(t(3, 10)));
-        // Covered: no further on in either timer.
-        assert_eq!(admit(&mut v, 7, t(3, 10)), None);
-        assert_eq!(admit(&mut v, 7, t(0, 4)), None);
-        // Further on in one: goes on with the larger of each.
-        assert_eq!(admit(&mut v, 7, t(5, 2)), Some(t(5, 10)));
-        assert_eq!(admit(&mut v, 7, t(4, 9)), None);
-        // Another key is another state.
-        assert_eq!(admit(&mut v, 8, t(0, 0)), Some(t(0, 0)));
     }
 }
