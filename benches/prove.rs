@@ -7,6 +7,24 @@ use limpet::model::FaultScope;
 use limpet::prove::{self, Config};
 use std::time::Instant;
 
+// The binary's allocator, so that the figures are the binary's.
+#[global_allocator]
+static ALLOC: limpet::alloc::HugeHint = limpet::alloc::HugeHint;
+
+/// The process's peak resident set, in bytes (Linux: `getrusage`, in KiB).
+#[cfg(target_os = "linux")]
+fn peak_rss() -> Option<u64> {
+    // SAFETY: `getrusage` fills the zeroed struct it is given and touches nothing else.
+    let mut u: libc::rusage = unsafe { std::mem::zeroed() };
+    let ok = unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut u) } == 0;
+    ok.then(|| u64::try_from(u.ru_maxrss).unwrap_or(0) * 1024)
+}
+
+#[cfg(not(target_os = "linux"))]
+fn peak_rss() -> Option<u64> {
+    None
+}
+
 fn main() {
     let src = std::fs::read_to_string(concat!(
         env!("CARGO_MANIFEST_DIR"),
@@ -35,6 +53,38 @@ fn main() {
             rate / threads as f64
         );
     };
+    // First, alone in the process so that the peak resident set is its own: the largest
+    // search of the reference, run until it closes.
+    let t = Instant::now();
+    let big = prove::prove(
+        &model,
+        &Config {
+            jobs: 1,
+            only: Some("pedal.a gain 150".into()),
+            max_states: 10_000_000,
+            ..Config::default()
+        },
+        &|_, _, _| {},
+    )
+    .expect("plant derives");
+    let wall = t.elapsed().as_secs_f64();
+    let faulty: usize = big.rows.iter().map(|r| r.result.faulty_states).sum();
+    println!(
+        "{:<44} {wall:>10.2} {:>12} {:>14.0} {:>14.0}",
+        "pedal.a gain 150 %, until closed, 1 thread",
+        big.states,
+        big.states as f64 / wall,
+        big.states as f64 / wall
+    );
+    if let Some(rss) = peak_rss() {
+        println!(
+            "  peak resident set {:.0} MiB: {:.0} bytes per stored joint state ({} joint, {} faulty nodes)",
+            rss as f64 / f64::from(1 << 20),
+            rss as f64 / big.states as f64,
+            big.states,
+            faulty
+        );
+    }
     run(
         "single faults, defaults, 1 thread",
         Config {
@@ -51,9 +101,9 @@ fn main() {
         },
     );
     run(
-        "single faults, 1 M states bound, all threads",
+        "single faults, 10 M states bound, all threads",
         Config {
-            max_states: 1_000_000,
+            max_states: 10_000_000,
             ..Config::default()
         },
     );
@@ -65,9 +115,11 @@ fn main() {
             ..Config::default()
         },
     );
-    // What one stored state costs: the visited digest (16 bytes) and its requirement timers
-    // (4), the path record (parent, pedal, origin: 9, padded to 12), the hash table's control
-    // byte; plus the slack of a table at load factor 7/8 and the frontier's states in flight.
-    let per_state = 16 + 4 + 12 + 1;
-    println!("bytes per stored state: about {per_state} plus hash-table slack (load factor 7/8)");
+    // What one stored joint state costs by layout: its visited slot (12 bytes, the table
+    // between a quarter and half full), its path record (parent, pedal, origin: 9, padded to
+    // 12) and its place in the frontier while in flight (16); the faulty graph's nodes (the
+    // controller state, plate, successors, index) come on top, one per several joint states.
+    println!(
+        "by layout: 24 to 48 bytes of visited table, 12 of path and 16 in flight per joint state, plus the faulty nodes"
+    );
 }

@@ -143,6 +143,15 @@ pub fn requirements(model: &Model) -> Vec<Requirement> {
         .collect()
 }
 
+/// Whether `inj` breaks the driver's own sensor.
+fn on_driver(model: &Model, inj: &Injection) -> bool {
+    match *inj {
+        Injection::Track { track, .. } => Some(track.sensor) == model.driver,
+        Injection::Sensor { sensor, .. } => Some(sensor) == model.driver,
+        Injection::Actuator { .. } => false,
+    }
+}
+
 /// Faults no throttle policy can correct: the plate does not move whatever the drive does.
 pub fn uncorrectable(inj: &[Injection]) -> bool {
     inj.iter().any(|i| {
@@ -281,11 +290,30 @@ pub fn prove(
     let rows: Vec<Row> = if cfg.jobs == 1 {
         sets.iter().map(run).collect()
     } else {
+        // The searches one by one, the likely largest first (those on the driver's own
+        // sensor, which leave the driver steering the faulty vehicle), so that no long one
+        // starts last; each result goes back to its place, so the output keeps the fault
+        // space's order whatever the schedule.
+        let mut order: Vec<usize> = (0..sets.len()).collect();
+        order.sort_by_key(|&i| !sets[i].iter().any(|j| on_driver(model, j)));
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(cfg.jobs)
             .build();
         match pool {
-            Ok(p) => p.install(|| sets.par_iter().map(run).collect()),
+            Ok(p) => {
+                let done: Vec<(usize, Row)> = p.install(|| {
+                    order
+                        .par_iter()
+                        .with_max_len(1)
+                        .map(|&i| (i, run(&sets[i])))
+                        .collect()
+                });
+                let mut rows: Vec<Option<Row>> = (0..sets.len()).map(|_| None).collect();
+                for (i, r) in done {
+                    rows[i] = Some(r);
+                }
+                rows.into_iter().flatten().collect()
+            }
             Err(_) => sets.iter().map(run).collect(),
         }
     };
