@@ -9,14 +9,14 @@
 
 use super::Config;
 use super::cone::{Cone, ConeCache};
-use super::search::{FaultLists, PassThrough, break_into, digest, grid, quantise};
+use super::joint::DigestIndex;
+use super::search::{FaultLists, break_into, digest, grid, quantise};
 use crate::controller::{Outputs, Sample, State};
 use crate::faults::{Injection, TrackFault};
 use crate::plant::PlantState;
 use crate::sim::system::Vehicle;
 use crate::time::Time;
 use std::collections::HashMap;
-use std::hash::BuildHasherDefault;
 
 /// A successor not stepped yet.
 const UNKNOWN: u32 = u32::MAX;
@@ -85,7 +85,7 @@ pub struct Faulty<'a> {
     masks: Vec<u64>,
     words: usize,
     succ: Vec<u32>,
-    index: HashMap<u128, u32, BuildHasherDefault<PassThrough>>,
+    index: DigestIndex,
     pub lists: FaultLists,
     /// A pair's second fault broken into a list: (list before, captured, phase origin) -> list.
     list_index: HashMap<(u32, u64, u64), u32>,
@@ -144,7 +144,7 @@ impl<'a> Faulty<'a> {
             masks: Vec::new(),
             words: model.faults.len().div_ceil(64).max(1),
             succ: Vec::new(),
-            index: HashMap::default(),
+            index: DigestIndex::default(),
             lists: FaultLists::new(cfg.resolution),
             list_index: HashMap::new(),
             cone: Cone::new(model),
@@ -208,7 +208,7 @@ impl<'a> Faulty<'a> {
         self.buf.push(pedal);
         self.buf.push(u8::from(second_in));
         let k = digest(&self.buf);
-        if let Some(&i) = self.index.get(&k) {
+        if let Some(i) = self.index.get(k) {
             self.spare = Some(st);
             return i;
         }

@@ -1,10 +1,11 @@
-//! The joint search's visited set: packed 64-bit keys (faulty node, twin, detection) with the
-//! requirement timers each was reached with, in one open-addressed table.
+//! The search's two large tables, each open-addressed with linear probing: the joint visited
+//! set (packed 64-bit keys of faulty node, twin and detection, with the requirement timers each
+//! was reached with) and the faulty graph's index (128-bit state digests to node numbers).
 //!
 //! A general hash map keeps its tags apart from its entries, so a lookup in a table far larger
-//! than the caches misses twice; here a slot holds key and timers in 12 bytes and a lookup
-//! usually misses once. The search also announces its next lookups (`prefetch`) so that the
-//! misses of one state's successors overlap.
+//! than the caches misses twice; here a slot holds key and value together and a lookup usually
+//! misses once. The search also announces its next visited-set lookups (`prefetch`) so that
+//! the misses of one state's successors overlap.
 
 use super::search::Timers;
 
@@ -131,9 +132,91 @@ impl JointSet {
     }
 }
 
+/// Where digest `d`'s probe starts: both halves, so that either one alone may repeat.
+fn start(d: u128, mask: usize) -> usize {
+    ((d as u64) ^ ((d >> 64) as u64)) as usize & mask
+}
+
+/// 128-bit digests (already well mixed) to node numbers below `u32::MAX`.
+pub struct DigestIndex {
+    /// `(digest halves, node + 1)` per slot (24 bytes: a `u128` would align it to 32), 0
+    /// for an empty one; the length is a power of two.
+    slots: Vec<([u64; 2], u32)>,
+    len: usize,
+}
+
+impl Default for DigestIndex {
+    fn default() -> DigestIndex {
+        DigestIndex {
+            slots: vec![([0; 2], 0); 1 << 10],
+            len: 0,
+        }
+    }
+}
+
+fn halves(d: u128) -> [u64; 2] {
+    [d as u64, (d >> 64) as u64]
+}
+
+impl DigestIndex {
+    /// The node of digest `d`, if any.
+    pub fn get(&self, d: u128) -> Option<u32> {
+        let mask = self.slots.len() - 1;
+        let key = halves(d);
+        let mut i = start(d, mask);
+        loop {
+            let (k, v) = self.slots[i];
+            if v == 0 {
+                return None;
+            }
+            if k == key {
+                return Some(v - 1);
+            }
+            i = (i + 1) & mask;
+        }
+    }
+
+    /// Records digest `d` as node `n` (`d` not recorded yet, `n < u32::MAX`).
+    pub fn insert(&mut self, d: u128, n: u32) {
+        if (self.len + 1) * 2 > self.slots.len() {
+            let size = self.slots.len() * 2;
+            let old = std::mem::replace(&mut self.slots, vec![([0; 2], 0); size]);
+            self.len = 0;
+            for (k, v) in old.into_iter().filter(|s| s.1 != 0) {
+                self.insert(u128::from(k[0]) | (u128::from(k[1]) << 64), v - 1);
+            }
+        }
+        let mask = self.slots.len() - 1;
+        let mut i = start(d, mask);
+        while self.slots[i].1 != 0 {
+            i = (i + 1) & mask;
+        }
+        self.slots[i] = (halves(d), n + 1);
+        self.len += 1;
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn digests_find_their_nodes_through_growth() {
+        // The standard library's map as the reference, over digests that share their low
+        // halves (the probe start) in runs.
+        let mut ix = DigestIndex::default();
+        let mut m = std::collections::HashMap::new();
+        for n in 0..50_000u32 {
+            let d = (u128::from(n) << 64) | u128::from(n / 7);
+            assert_eq!(ix.get(d), None);
+            ix.insert(d, n);
+            m.insert(d, n);
+        }
+        for (&d, &n) in &m {
+            assert_eq!(ix.get(d), Some(n));
+        }
+        assert_eq!(ix.get(u128::MAX), None);
+    }
 
     #[test]
     fn timers_take_part_by_dominance() {
