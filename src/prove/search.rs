@@ -1370,6 +1370,63 @@ mod tests {
     use super::*;
 
     #[test]
+    fn a_lone_future_reads_its_verdict_for_any_timers() {
+        // The requirement semantics of DEVELOPERS.md: an excess above the limit for more than
+        // `steps` periods, the opening above the ceiling, the plate above idle once the pedal
+        // has been at 0 % for `steps` periods.
+        let model = crate::model::lower(include_str!("../../scenarios/van/van_throttle.limp"))
+            .expect("the van lowers");
+        let reqs = [
+            Req::Excess {
+                limit: 5.0,
+                steps: 40,
+            },
+            Req::Never {
+                above: 90.0,
+                unless_driver: Some(90.0),
+            },
+            Req::Idle {
+                idle: 8.0,
+                steps: 200,
+            },
+        ];
+        let lone = |lead, later, above, last, end| LoneFuture {
+            end,
+            traces: vec![
+                LoneTrace::Excess { lead, later },
+                LoneTrace::Never { above },
+                LoneTrace::Idle { last },
+            ],
+            opens: Vec::new(),
+            suffix_peak: Vec::new(),
+            safe_at: None,
+            last_mode: 0,
+        };
+        let t = |excess, released| Timers { excess, released };
+        let none = [false; 3];
+        let f = lone(10, 0, false, 5, LoneEnd::Horizon);
+        // The leading run continues the excess timer: 30 + 10 = 40 is not more than 40.
+        assert!(f.harmless(&model, &reqs, &none, t(30, 0)));
+        assert!(!f.harmless(&model, &reqs, &none, t(31, 0)));
+        // The plate is above idle until step 5: released 195 + 5 reaches 200.
+        assert!(!f.harmless(&model, &reqs, &none, t(0, 195)));
+        assert!(f.harmless(&model, &reqs, &none, t(0, 194)));
+        // A requirement already found violated no longer counts.
+        assert!(f.harmless(&model, &reqs, &[true, false, true], t(31, 195)));
+        // A later run starts its own timer.
+        assert!(!lone(0, 41, false, 0, LoneEnd::Horizon).harmless(&model, &reqs, &none, t(0, 0)));
+        assert!(!lone(0, 0, true, 0, LoneEnd::Horizon).harmless(&model, &reqs, &none, t(0, 0)));
+        // Back in the driver's hands: the search goes on, whatever the traces.
+        assert!(!lone(0, 0, false, 0, LoneEnd::Reentered).harmless(&model, &reqs, &none, t(0, 0)));
+        // Settled for good: held above idle breaks the idle requirement in the end, at the
+        // springs' default it breaks nothing.
+        let default = model.actuator.default;
+        let held = |open| lone(0, 0, false, 0, LoneEnd::Settled(open));
+        assert!(!held(default + 2.0).harmless(&model, &reqs, &none, t(0, 0)));
+        assert!(held(default).harmless(&model, &reqs, &none, t(0, 0)));
+    }
+
+    #[test]
     fn digests_tell_encodings_apart() {
         // Every single-byte change, every truncation and every zero padding of a
         // state-sized buffer gives a digest of its own (common practice, no source: a
