@@ -73,6 +73,8 @@ pub struct Faulty<'a> {
     pair: bool,
     max: usize,
     pub st: Vec<State>,
+    /// Whose state has been released (see [`Faulty::release`]).
+    hollow: Vec<bool>,
     pub plate: Vec<PlantState>,
     /// The absolute step of the node's first visitor (the next step happens at this instant).
     pub step: Vec<u32>,
@@ -136,6 +138,7 @@ impl<'a> Faulty<'a> {
             pair,
             max,
             st: Vec::new(),
+            hollow: Vec::new(),
             plate: Vec::new(),
             step: Vec::new(),
             phase: Vec::new(),
@@ -159,6 +162,24 @@ impl<'a> Faulty<'a> {
 
     pub fn vehicle(&self) -> &'a Vehicle {
         self.vehicle
+    }
+
+    /// Drops node `f`'s controller memory once the search has asked for every successor it
+    /// will ever ask of `f` (they stay known): its state is never read again. The first
+    /// `roots` nodes (the injections) are kept: a node made as a successor has had its lone
+    /// future taken at once, if it has one, but a root has not.
+    pub fn release(&mut self, f: u32, roots: u32) {
+        let fi = f as usize;
+        if f >= roots && !self.hollow[fi] {
+            let mode = self.st[fi].mode();
+            self.st[fi] = State::hollow(mode);
+            self.hollow[fi] = true;
+        }
+    }
+
+    /// Whether node `f`'s state has been released.
+    pub fn is_hollow(&self, f: u32) -> bool {
+        self.hollow[f as usize]
     }
 
     /// Nodes stored so far.
@@ -241,6 +262,7 @@ impl<'a> Faulty<'a> {
                 | flag(self.lists.stuck[faults as usize], Hot::STUCK),
         });
         self.st.push(st);
+        self.hollow.push(false);
         self.plate.push(plate);
         self.step.push(step);
         self.phase.push(phase);
@@ -272,6 +294,12 @@ impl<'a> Faulty<'a> {
         }
         let model = self.vehicle.ctl.model();
         let fi = f as usize;
+        if self.hollow[fi] {
+            // Cannot happen (a node is released only once all its successors are known); if it
+            // did, the branch is cut as at the bound, on the side of "inconclusive".
+            self.truncated = true;
+            return DROPPED;
+        }
         let now = Time(model.period.0 * u64::from(self.step[fi]));
         let mut st = match self.spare.take() {
             Some(mut s) => {

@@ -820,6 +820,7 @@ pub fn search_fault<'v>(
         }
     }
     res.roots = frontier.len();
+    let root_nodes = fg.nodes() as u32;
     probe(
         vehicle,
         pre,
@@ -1035,6 +1036,8 @@ pub fn search_fault<'v>(
             if !any_new {
                 end_modes[here.mode as usize] = true;
             }
+            // Every successor this node will ever be asked for is known now.
+            fg.release(node.f, root_nodes);
         }
         std::mem::swap(&mut frontier, &mut next_frontier);
         // Nodes beside the same faulty node one after the other: they share the faulty
@@ -1165,6 +1168,18 @@ impl LoneFuture {
         let fi = f as usize;
         let period = model.period;
         let vehicle = fg.vehicle();
+        if fg.is_hollow(f) {
+            // Cannot happen (a lone future is taken when its node is made); if it did, the
+            // search goes on as if the driver were back.
+            return LoneFuture {
+                end: LoneEnd::Reentered,
+                traces: Vec::new(),
+                opens: Vec::new(),
+                suffix_peak: Vec::new(),
+                safe_at: None,
+                last_mode: fg.hot[fi].mode as usize,
+            };
+        }
         let mut st = fg.st[fi].clone();
         // The state before each step, to see a step that changed nothing in the cone.
         let mut prev = st.clone();
