@@ -705,7 +705,7 @@ impl Hasher for MixU64 {
 /// (see [`Faulty`], stepped lazily, each successor once) and the fault-free set, both moved by
 /// the same pedal action. A joint state pairs a faulty node with its twin (by the twin's index
 /// with `exact_twin`, else by its plate) and is expanded once per timer dominance (see
-/// [`admit`]).
+/// [`JointSet::admit`]).
 pub fn search_fault<'v>(
     vehicle: &'v Vehicle,
     pre: &PreSet<'v>,
