@@ -261,7 +261,7 @@ fn main() -> ExitCode {
             counterexamples,
             format,
         } => {
-            if let Err(e) = limpet::prove::Config::check_flags(grid, resolution) {
+            if let Err(e) = limpet::prove::Config::check_flags(grid, resolution, horizon) {
                 Outcome::bad_input(e)
             } else {
                 let search = limpet::prove::Config {

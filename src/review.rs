@@ -357,7 +357,9 @@ fn replay_text(m: &Model, text: &str) -> Result<String, String> {
 
 /// `limpet review` from the command line's values: checks the search flags, then reviews.
 pub fn command(dir: String, output: Option<String>, search: crate::prove::Config) -> Outcome {
-    if let Err(e) = crate::prove::Config::check_flags(search.grid, search.resolution) {
+    if let Err(e) =
+        crate::prove::Config::check_flags(search.grid, search.resolution, search.horizon)
+    {
         return Outcome::bad_input(e);
     }
     review(&ReviewConfig {

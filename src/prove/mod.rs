@@ -56,14 +56,17 @@ impl Default for Config {
 
 impl Config {
     /// Validates the grid and resolution flags: the grid must fit a pedal index in a byte.
-    pub fn check_flags(grid: f64, resolution: f64) -> Result<(), String> {
-        if (search::MIN_GRID..=100.0).contains(&grid) && resolution > 0.0 && resolution <= 50.0 {
-            Ok(())
-        } else {
+    pub fn check_flags(grid: f64, resolution: f64, horizon: Time) -> Result<(), String> {
+        if !((search::MIN_GRID..=100.0).contains(&grid) && resolution > 0.0 && resolution <= 50.0) {
             Err(format!(
                 "error: --grid must be in {} .. 100 and --resolution in (0, 50] percent\n  = hint: e.g. --grid 5 --resolution 5\n",
                 search::MIN_GRID
             ))
+        } else if horizon == Time(0) {
+            // Nothing after an injection would be checked: every requirement would "hold".
+            Err("error: --horizon must be longer than 0: the requirements are checked over the horizon after each injection\n  = hint: e.g. --horizon 1.2s, a few times the fault-tolerant time interval\n".into())
+        } else {
+            Ok(())
         }
     }
 }
@@ -327,4 +330,24 @@ pub fn prove(
         rows,
         states,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn flags_out_of_range_are_bad_input() {
+        let ok = Time::from_ms(1200);
+        assert!(Config::check_flags(5.0, 10.0, ok).is_ok());
+        assert!(Config::check_flags(0.5, 10.0, ok).is_err());
+        assert!(Config::check_flags(5.0, 0.0, ok).is_err());
+        assert!(Config::check_flags(5.0, 60.0, ok).is_err());
+        assert!(Config::check_flags(f64::NAN, 10.0, ok).is_err());
+        let zero = Config::check_flags(5.0, 10.0, Time(0)).unwrap_err();
+        assert!(
+            zero.contains("--horizon") && zero.contains("hint"),
+            "{zero}"
+        );
+    }
 }
