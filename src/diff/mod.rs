@@ -23,16 +23,13 @@ pub struct DiffConfig {
     pub prove: Option<crate::prove::Config>,
 }
 
-/// The search settings `--prove` uses: coarse, so that a review runs in seconds rather than
-/// the minutes a full proof takes; the output states them.
+/// The search settings `--prove` uses: `limpet prove`'s defaults, so that a review runs in
+/// seconds rather than the minute a complete proof takes, and its matrices are the ones
+/// `prove` prints for each revision; the output states them. (A coarser pedal grid is no
+/// cheaper: pedal jumps of a quarter of the travel per period set plausibility checks
+/// pending all the time, and the fault-free set grows past the bound before it closes.)
 pub fn review_search() -> crate::prove::Config {
-    crate::prove::Config {
-        grid: 25.0,
-        resolution: 10.0,
-        horizon: crate::time::Time::from_ms(1200),
-        max_states: 20_000,
-        ..crate::prove::Config::default()
-    }
+    crate::prove::Config::default()
 }
 
 /// One revision, read and resolved.
