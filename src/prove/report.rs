@@ -214,16 +214,27 @@ pub fn stories(m: &Model, p: &Proof) -> String {
                 secs(v.at),
                 v.pedal.len()
             );
+            let digits = telling_digits(v.opening, v.bound);
             let _ = writeln!(
                 o,
-                "  opening {:.2} % at {} where the bound is {:.2} %",
+                "  opening {:.*} % at {} where the bound is {:.*} %",
+                digits,
                 v.opening,
                 secs(v.at),
+                digits,
                 v.bound
             );
         }
     }
     o
+}
+
+/// Enough decimals (2 to 6) to tell `a` from `b` in print: a plate settling onto its bound
+/// from above breaks it by less than a hundredth of a percent.
+fn telling_digits(a: f64, b: f64) -> usize {
+    (2..=6)
+        .find(|&d| format!("{a:.d$}") != format!("{b:.d$}"))
+        .unwrap_or(6)
 }
 
 fn secs(t: Time) -> String {
@@ -418,4 +429,17 @@ pub fn script(
     );
     let _ = writeln!(o, "}}");
     o
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn stories_print_enough_decimals_to_show_the_breach() {
+        assert_eq!(telling_digits(12.0, 8.0), 2);
+        assert_eq!(telling_digits(8.004, 8.0), 3);
+        assert_eq!(telling_digits(8.000_01, 8.0), 5);
+        assert_eq!(telling_digits(8.0, 8.0), 6);
+    }
 }
