@@ -16,7 +16,6 @@ use crate::faults::{Injection, TrackFault};
 use crate::plant::PlantState;
 use crate::sim::system::Vehicle;
 use crate::time::Time;
-use std::collections::HashMap;
 
 /// A successor not stepped yet.
 const UNKNOWN: u32 = u32::MAX;
@@ -89,8 +88,6 @@ pub struct Faulty<'a> {
     succ: Vec<u32>,
     index: DigestIndex,
     pub lists: FaultLists,
-    /// A pair's second fault broken into a list: (list before, captured, phase origin) -> list.
-    list_index: HashMap<(u32, u64, u64), u32>,
     pub cone: Cone,
     pub cache: ConeCache,
     scratch: (Sample, Outputs),
@@ -148,8 +145,7 @@ impl<'a> Faulty<'a> {
             words: model.faults.len().div_ceil(64).max(1),
             succ: Vec::new(),
             index: DigestIndex::default(),
-            lists: FaultLists::new(cfg.resolution),
-            list_index: HashMap::new(),
+            lists: FaultLists::new(cfg.resolution, cycle),
             cone: Cone::new(model),
             cache: ConeCache::default(),
             scratch: (sample, Outputs::default()),
@@ -322,17 +318,7 @@ impl<'a> Faulty<'a> {
                 &self.lists.lists[faults as usize],
             );
             plate = p;
-            let af = list[list.len() - 1];
-            let origin = if self.cycle > 1 { af.since.0 } else { 0 };
-            let key = (faults, af.captured.to_bits(), origin);
-            faults = match self.list_index.get(&key) {
-                Some(&l) => l,
-                None => {
-                    let l = self.lists.push(list);
-                    self.list_index.insert(key, l);
-                    l
-                }
-            };
+            faults = self.lists.add(Some(faults), list);
         }
         if let Some(d) = model.driver {
             self.positions[d] = self.grid[usize::from(a)];

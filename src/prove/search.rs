@@ -640,19 +640,41 @@ pub struct FaultLists {
     pub captured: Vec<Vec<i32>>,
     pub stuck: Vec<bool>,
     quantum: f64,
+    /// Steps in an intermittent fault's cycle (1 when there is none).
+    cycle: u32,
+    /// (list broken into, captured bits, phase origin) -> list; see [`FaultLists::add`].
+    index: std::collections::HashMap<(u32, u64, u64), u32>,
 }
 
 impl FaultLists {
-    pub fn new(resolution: f64) -> FaultLists {
+    pub fn new(resolution: f64, cycle: u32) -> FaultLists {
         FaultLists {
             lists: Vec::new(),
             captured: Vec::new(),
             stuck: Vec::new(),
             quantum: resolution / 25.0,
+            cycle,
+            index: Default::default(),
         }
     }
 
-    pub fn push(&mut self, list: Vec<ActiveFault>) -> u32 {
+    /// The index of `list`, made by breaking one more fault into list `before` (`None`: into
+    /// the fault-free vehicle, which has none active), stored if new. What the new fault
+    /// captured, and for an intermittent one its phase's origin, is all that tells two such
+    /// lists apart.
+    pub fn add(&mut self, before: Option<u32>, list: Vec<ActiveFault>) -> u32 {
+        let af = list[list.len() - 1];
+        let origin = if self.cycle > 1 { af.since.0 } else { 0 };
+        let key = (before.unwrap_or(u32::MAX), af.captured.to_bits(), origin);
+        if let Some(&l) = self.index.get(&key) {
+            return l;
+        }
+        let l = self.push(list);
+        self.index.insert(key, l);
+        l
+    }
+
+    fn push(&mut self, list: Vec<ActiveFault>) -> u32 {
         let q = self.quantum;
         self.captured
             .push(list.iter().map(|a| quantise(a.captured, q)).collect());
@@ -735,7 +757,6 @@ pub fn search_fault<'v>(
         pre.nodes[0].sys.sample().clone(),
         cfg.max_states.min(MAX_NODES),
     );
-    let cycle = fg.cycle;
 
     let mut res = FaultResult {
         worst_opening_below_ceiling: f64::NEG_INFINITY,
@@ -767,7 +788,6 @@ pub fn search_fault<'v>(
 
     // Roots: the fault injected into every fault-free state, i.e. at every injection instant
     // the fault-free set tells apart at the resolution.
-    let mut shared: std::collections::HashMap<(u64, u64), u32> = Default::default();
     for (oi, o) in pre.nodes.iter().enumerate() {
         let Some(st) = o.sys.controller_state() else {
             // The key-on state before the first step: its first step is explored from the
@@ -784,13 +804,7 @@ pub fn search_fault<'v>(
             o.sys.plate(),
             o.sys.active_faults(),
         );
-        // What a fault captures, and for an intermittent one its phase's origin, is all that
-        // tells two roots' lists apart (the fault-free set has no fault active).
-        let af = list[list.len() - 1];
-        let phase = if cycle > 1 { af.since.0 } else { 0 };
-        let faults = *shared
-            .entry((af.captured.to_bits(), phase))
-            .or_insert_with(|| fg.lists.push(list));
+        let faults = fg.lists.add(None, list);
         let f = fg.intern(
             st.clone(),
             plate,
