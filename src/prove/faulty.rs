@@ -10,7 +10,9 @@
 use super::Config;
 use super::cone::{Cone, ConeCache};
 use super::joint::DigestIndex;
-use super::search::{FaultLists, break_into, digest, grid, quantise};
+use super::search::{
+    FaultLists, break_into, digest, encode_plate, grid, monitor_words, push_monitor_words,
+};
 use crate::controller::{Outputs, Sample, State};
 use crate::faults::{Injection, TrackFault};
 use crate::plant::PlantState;
@@ -142,7 +144,7 @@ impl<'a> Faulty<'a> {
             pedal: Vec::new(),
             hot: Vec::new(),
             masks: Vec::new(),
-            words: model.faults.len().div_ceil(64).max(1),
+            words: monitor_words(model.faults.len()),
             succ: Vec::new(),
             index: DigestIndex::default(),
             lists: FaultLists::new(cfg.resolution, cycle),
@@ -212,12 +214,7 @@ impl<'a> Faulty<'a> {
         // the plate, what the faults captured, an intermittent fault's phase, the pedal and a
         // pair's progress.
         st.encode_relevant(model, self.resolution, rel, &mut self.buf);
-        let q = |v: f64, r: f64| quantise(v, r).to_le_bytes();
-        self.buf
-            .extend_from_slice(&q(plate.position, self.resolution));
-        // Velocities up to a few thousand %/s: quantised at 40 resolutions per second.
-        self.buf
-            .extend_from_slice(&q(plate.velocity, self.resolution * 40.0));
+        encode_plate(plate, self.resolution, &mut self.buf);
         for c in &self.lists.captured[faults as usize] {
             self.buf.extend_from_slice(&c.to_le_bytes());
         }
@@ -236,16 +233,7 @@ impl<'a> Faulty<'a> {
         }
         let i = self.st.len() as u32;
         self.index.insert(k, i);
-        for w in 0..self.words {
-            let mut m = 0u64;
-            for b in 0..64 {
-                let f = w * 64 + b;
-                if f < model.faults.len() && st.fault_set(f) {
-                    m |= 1 << b;
-                }
-            }
-            self.masks.push(m);
-        }
+        push_monitor_words(model.faults.len(), |f| st.fault_set(f), &mut self.masks);
         let flag = |b: bool, f: u8| if b { f } else { 0 };
         self.hot.push(Hot {
             open: plate.position,

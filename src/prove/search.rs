@@ -195,6 +195,42 @@ pub(super) fn quantise(x: f64, q: f64) -> i32 {
     }
 }
 
+/// The plate's cell at resolution `res`: its opening, and its speed (up to a few thousand
+/// %/s) at 40 resolutions per second.
+pub(super) fn plate_cell(plate: PlantState, res: f64) -> (i32, i32) {
+    (
+        quantise(plate.position, res),
+        quantise(plate.velocity, res * 40.0),
+    )
+}
+
+/// Appends a plate's cell (see [`plate_cell`]) to an encoding.
+pub(super) fn encode_plate(plate: PlantState, res: f64, out: &mut Vec<u8>) {
+    let (p, v) = plate_cell(plate, res);
+    out.extend_from_slice(&p.to_le_bytes());
+    out.extend_from_slice(&v.to_le_bytes());
+}
+
+/// How many 64-bit words hold a bit per monitor of `n`.
+pub(super) fn monitor_words(n: usize) -> usize {
+    n.div_ceil(64).max(1)
+}
+
+/// Appends the monitors set in a vehicle (`set(f)` for monitor `f` of `n`) as 64-bit words,
+/// bit `f % 64` of word `f / 64`.
+pub(super) fn push_monitor_words(n: usize, set: impl Fn(usize) -> bool, out: &mut Vec<u64>) {
+    for w in 0..monitor_words(n) {
+        let mut m = 0u64;
+        for b in 0..64 {
+            let f = w * 64 + b;
+            if f < n && set(f) {
+                m |= 1 << b;
+            }
+        }
+        out.push(m);
+    }
+}
+
 /// The encoding of one vehicle: controller state (discrete parts exact, continuous parts
 /// quantised) and the plate.
 pub fn encode_system(sys: &System<'_>, model: &Model, res: f64, out: &mut Vec<u8>) {
@@ -202,10 +238,7 @@ pub fn encode_system(sys: &System<'_>, model: &Model, res: f64, out: &mut Vec<u8
     if let Some(st) = sys.controller_state() {
         st.encode(model, res, out);
     }
-    let plate = sys.plate();
-    out.extend_from_slice(&quantise(plate.position, res).to_le_bytes());
-    // Velocities up to a few thousand %/s: quantised at 40 resolutions per second.
-    out.extend_from_slice(&quantise(plate.velocity, res * 40.0).to_le_bytes());
+    encode_plate(sys.plate(), res, out);
 }
 
 /// Explores the fault-free system from key on with the pedal released.
@@ -290,28 +323,15 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
         }
         nodes[i].succ = succ;
     }
-    let words = model.faults.len().div_ceil(64).max(1);
+    let words = monitor_words(model.faults.len());
     let mut masks = Vec::with_capacity(nodes.len() * words);
     let mut classes: std::collections::HashMap<(i32, i32), u32> = Default::default();
     let mut hot = Vec::with_capacity(nodes.len());
     let stride = if cfg.free_pedal { g.len() } else { 3 };
     let mut flat = Vec::with_capacity(nodes.len() * stride);
     for (i, n) in nodes.iter().enumerate() {
-        for w in 0..words {
-            let mut m = 0u64;
-            for b in 0..64 {
-                let f = w * 64 + b;
-                if f < model.faults.len() && n.sys.fault_set(f) {
-                    m |= 1 << b;
-                }
-            }
-            masks.push(m);
-        }
-        let p = n.sys.plate();
-        let c = (
-            quantise(p.position, cfg.resolution),
-            quantise(p.velocity, cfg.resolution * 40.0),
-        );
+        push_monitor_words(model.faults.len(), |f| n.sys.fault_set(f), &mut masks);
+        let c = plate_cell(n.sys.plate(), cfg.resolution);
         let next = classes.len() as u32;
         hot.push(PreHot {
             opening: n.sys.opening(),
@@ -770,7 +790,7 @@ pub fn search_fault<'v>(
     let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored state
     let mut frontier: Vec<Joint> = Vec::new();
     let mut tail_scratch = (pre.nodes[0].sys.sample().clone(), Default::default());
-    let mut monitor_seen = vec![0u64; model.faults.len().div_ceil(64).max(1)];
+    let mut monitor_seen = vec![0u64; monitor_words(model.faults.len())];
     let mut end_modes = vec![false; model.modes.len()];
     let mut found = vec![false; reqs.len()];
     let mut tries = vec![0usize; reqs.len()];
