@@ -41,34 +41,36 @@ fn hint(ptr: *mut u8, size: usize) {
 #[cfg(not(target_os = "linux"))]
 fn hint(_: *mut u8, _: usize) {}
 
+/// Allocates with `from` (the system's `alloc` or `alloc_zeroed`), a large block with the
+/// layout [`large`] gives and the hint.
+///
+/// # Safety
+/// `layout` has a non-zero size, as `GlobalAlloc::alloc` requires.
+unsafe fn hinted(layout: Layout, from: unsafe fn(&System, Layout) -> *mut u8) -> *mut u8 {
+    match large(layout) {
+        // SAFETY: a valid non-zero layout: `layout`'s size with a larger power-of-two align.
+        Some(l) => unsafe {
+            let p = from(&System, l);
+            hint(p, l.size());
+            p
+        },
+        // SAFETY: as the caller guarantees.
+        None => unsafe { from(&System, layout) },
+    }
+}
+
 // SAFETY: every block is allocated and freed by `System` with the same layout: `large` maps a
 // layout to the same aligned layout in `alloc`, `alloc_zeroed` and `dealloc`, and `realloc`
 // of a large block (before or after) moves it through those three.
 unsafe impl GlobalAlloc for HugeHint {
     unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
-        match large(layout) {
-            // SAFETY: a valid non-zero layout, as the caller guarantees for `layout`.
-            Some(l) => unsafe {
-                let p = System.alloc(l);
-                hint(p, l.size());
-                p
-            },
-            // SAFETY: as the caller guarantees.
-            None => unsafe { System.alloc(layout) },
-        }
+        // SAFETY: as the caller guarantees for `layout`.
+        unsafe { hinted(layout, System::alloc) }
     }
 
     unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
-        match large(layout) {
-            // SAFETY: as in `alloc`.
-            Some(l) => unsafe {
-                let p = System.alloc_zeroed(l);
-                hint(p, l.size());
-                p
-            },
-            // SAFETY: as the caller guarantees.
-            None => unsafe { System.alloc_zeroed(layout) },
-        }
+        // SAFETY: as the caller guarantees for `layout`.
+        unsafe { hinted(layout, System::alloc_zeroed) }
     }
 
     unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {

@@ -55,7 +55,8 @@ impl Default for Config {
 }
 
 impl Config {
-    /// Validates the grid and resolution flags: the grid must fit a pedal index in a byte.
+    /// Validates the grid, resolution and horizon flags: the grid must fit a pedal index in a
+    /// byte, and the horizon must leave something to check after an injection.
     pub fn check_flags(grid: f64, resolution: f64, horizon: Time) -> Result<(), String> {
         if !((search::MIN_GRID..=100.0).contains(&grid) && resolution > 0.0 && resolution <= 50.0) {
             Err(format!(
