@@ -9,9 +9,9 @@
 
 use super::Config;
 use super::cone::{Cone, ConeCache};
-use super::joint::DigestIndex;
+use super::joint::{DigestIndex, JointSet};
 use super::search::{
-    FaultLists, break_into, digest, encode_plate, grid, monitor_words, push_monitor_words,
+    FaultLists, Timers, break_into, digest, encode_plate, grid, monitor_words, push_monitor_words,
 };
 use crate::controller::{Outputs, Sample, State};
 use crate::faults::{Injection, TrackFault};
@@ -24,7 +24,7 @@ const UNKNOWN: u32 = u32::MAX;
 /// A successor that would have been a new node past the bound on states.
 pub const DROPPED: u32 = u32::MAX - 1;
 
-/// A faulty node as the joint search's inner loop reads it, packed in half a cache line.
+/// A faulty node as the joint search's inner loop reads it.
 #[derive(Clone, Copy, Debug)]
 pub struct Hot {
     /// The plate's opening.
@@ -33,8 +33,10 @@ pub struct Hot {
     pub mask0: u64,
     /// Index into `Faulty::lists`.
     pub faults: u32,
-    pub mode: u32,
+    pub mode: u16,
     flags: u8,
+    /// Joint entries held in the node's own record (see [`Rec`]).
+    inline: u8,
 }
 
 impl Hot {
@@ -42,6 +44,9 @@ impl Hot {
     const DRIVER_IN: u8 = 2;
     const SAFE: u8 = 4;
     const STUCK: u8 = 8;
+    /// The node's joint entries outgrew its record and chain: further ones go to the spill
+    /// table.
+    const SPILLED: u8 = 16;
 
     /// A pair's second fault is in (or there is none).
     pub fn second_in(&self) -> bool {
@@ -59,6 +64,61 @@ impl Hot {
     pub fn stuck(&self) -> bool {
         self.flags & Self::STUCK != 0
     }
+}
+
+/// Joint entries a node's record holds itself.
+const INLINE: usize = 4;
+/// Overflow buckets a node may chain before its further entries spill to a hash table (a
+/// bound on the linear scan of one admission).
+const MAX_CHAIN: usize = 8;
+
+/// One faulty node's record, one cache line: what the inner loop reads of it, and the first
+/// joint entries (twin part and detection, with the timers) that pair it with a fault-free
+/// twin. Most nodes have a handful of twins, so one admission usually touches only the line
+/// that reading the node brought in already.
+#[derive(Clone, Copy, Debug)]
+#[repr(C, align(64))]
+struct Rec {
+    hot: Hot,
+    /// 1 + the first overflow bucket, 0 for none.
+    more: u32,
+    /// 1 + the node's lone future (the search's), 0 for none.
+    lone: u32,
+    /// `(part << 32) | packed timers` per entry; the first `hot.inline` are in use.
+    seen: [u64; INLINE],
+}
+
+/// A node's further joint entries, chained.
+#[derive(Clone, Copy, Debug)]
+#[repr(C, align(64))]
+struct Bucket {
+    seen: [u64; 7],
+    len: u32,
+    /// 1 + the next bucket, 0 for none.
+    next: u32,
+}
+
+fn pack_entry(part: u32, t: Timers) -> u64 {
+    (u64::from(part) << 32) | (u64::from(t.excess) << 16) | u64::from(t.released)
+}
+
+/// Merges timers `t` into entry `e` if it is `part`'s: `Some(None)` when `e` covers them
+/// (no further on in either timer), `Some(Some(max))` when it did not (the entry now holds
+/// the larger of each), `None` when `e` is another twin's.
+#[inline]
+fn merge(e: &mut u64, part: u32, t: Timers) -> Option<Option<Timers>> {
+    if (*e >> 32) as u32 != part {
+        return None;
+    }
+    let old = Timers {
+        excess: (*e >> 16) as u16,
+        released: *e as u16,
+    };
+    let new = old.absorb(t);
+    if let Some(n) = new {
+        *e = pack_entry(part, n);
+    }
+    Some(new)
 }
 
 /// The faulty vehicle's graph. Node `i`'s parts are the `i`-th entries of the vectors.
@@ -82,8 +142,11 @@ pub struct Faulty<'a> {
     /// Steps since the injection, modulo `cycle`.
     phase: Vec<u32>,
     pub pedal: Vec<u8>,
-    /// What the joint search reads of each node, packed.
-    pub hot: Vec<Hot>,
+    /// What the joint search reads of each node, and its first joint entries.
+    recs: Vec<Rec>,
+    buckets: Vec<Bucket>,
+    /// Joint entries of nodes whose record and chain are full.
+    spill: JointSet,
     /// Monitors set, `words` 64-bit words per node.
     masks: Vec<u64>,
     words: usize,
@@ -142,7 +205,9 @@ impl<'a> Faulty<'a> {
             step: Vec::new(),
             phase: Vec::new(),
             pedal: Vec::new(),
-            hot: Vec::new(),
+            recs: Vec::new(),
+            buckets: Vec::new(),
+            spill: JointSet::default(),
             masks: Vec::new(),
             words: monitor_words(model.faults.len()),
             succ: Vec::new(),
@@ -191,6 +256,51 @@ impl<'a> Faulty<'a> {
         &self.masks[i..i + self.words]
     }
 
+    /// What the joint search reads of node `f`.
+    #[inline]
+    pub fn hot(&self, f: u32) -> &Hot {
+        &self.recs[f as usize].hot
+    }
+
+    /// Asks the processor to fetch node `f`'s record (a hint only).
+    #[inline]
+    pub fn prefetch(&self, f: u32) {
+        #[cfg(target_arch = "x86_64")]
+        {
+            let p = self.recs.as_ptr().wrapping_add(f as usize).cast::<i8>();
+            // SAFETY: a prefetch is a hint that never faults, whatever the address.
+            unsafe {
+                std::arch::x86_64::_mm_prefetch(p, std::arch::x86_64::_MM_HINT_T0);
+            }
+        }
+        #[cfg(not(target_arch = "x86_64"))]
+        let _ = f;
+    }
+
+    /// The lone future recorded for node `f` (the search's index), if any.
+    pub fn lone(&self, f: u32) -> Option<u32> {
+        self.recs[f as usize].lone.checked_sub(1)
+    }
+
+    /// Records node `f`'s lone future (`i < u32::MAX`).
+    pub fn set_lone(&mut self, f: u32, i: u32) {
+        self.recs[f as usize].lone = i + 1;
+    }
+
+    /// Records that node `f` was reached beside a twin whose part of the joint key (with the
+    /// detection bit) is `part`, with timers `t`: as [`JointSet::admit`] does for the key
+    /// `(f, part)`, whose semantics it shares, in the node's own record while it has room.
+    pub fn admit(&mut self, f: u32, part: u32, t: Timers) -> Option<Timers> {
+        admit(
+            &mut self.recs,
+            &mut self.buckets,
+            &mut self.spill,
+            f,
+            part,
+            t,
+        )
+    }
+
     /// The node for a faulty vehicle in this state: an existing one with the same encoding
     /// (the state is given back to be reused), a new one, or [`DROPPED`] at the bound.
     #[allow(clippy::too_many_arguments)]
@@ -235,15 +345,21 @@ impl<'a> Faulty<'a> {
         self.index.insert(k, i);
         push_monitor_words(model.faults.len(), |f| st.fault_set(f), &mut self.masks);
         let flag = |b: bool, f: u8| if b { f } else { 0 };
-        self.hot.push(Hot {
-            open: plate.position,
-            mask0: self.masks[i as usize * self.words],
-            faults,
-            mode: st.mode() as u32,
-            flags: flag(second_in, Hot::SECOND_IN)
-                | flag(driver_in, Hot::DRIVER_IN)
-                | flag(model.modes[st.mode()].is_safe(), Hot::SAFE)
-                | flag(self.lists.stuck[faults as usize], Hot::STUCK),
+        self.recs.push(Rec {
+            hot: Hot {
+                open: plate.position,
+                mask0: self.masks[i as usize * self.words],
+                faults,
+                mode: st.mode() as u16,
+                flags: flag(second_in, Hot::SECOND_IN)
+                    | flag(driver_in, Hot::DRIVER_IN)
+                    | flag(model.modes[st.mode()].is_safe(), Hot::SAFE)
+                    | flag(self.lists.stuck[faults as usize], Hot::STUCK),
+                inline: 0,
+            },
+            more: 0,
+            lone: 0,
+            seen: [0; INLINE],
         });
         self.st.push(st);
         self.hollow.push(false);
@@ -293,7 +409,7 @@ impl<'a> Faulty<'a> {
             None => self.st[fi].clone(),
         };
         let mut plate = self.plate[fi];
-        let mut faults = self.hot[fi].faults;
+        let mut faults = self.recs[fi].hot.faults;
         if inject_b {
             // The second fault arrives at this step's start, before the pedal moves, as a
             // script's `break` line before its `pedal` line does.
@@ -328,13 +444,138 @@ impl<'a> Faulty<'a> {
             self.step[fi] + 1,
             (self.phase[fi] + 1) % self.cycle,
             a,
-            self.hot[fi].second_in() || inject_b,
+            self.recs[fi].hot.second_in() || inject_b,
         );
         self.succ[slot] = next;
         next
     }
 }
 
+/// [`Faulty::admit`] over a graph's records, their overflow buckets and the spill table.
+fn admit(
+    recs: &mut [Rec],
+    buckets: &mut Vec<Bucket>,
+    spill: &mut JointSet,
+    f: u32,
+    part: u32,
+    t: Timers,
+) -> Option<Timers> {
+    let rec = &mut recs[f as usize];
+    let n = usize::from(rec.hot.inline);
+    for e in &mut rec.seen[..n] {
+        if let Some(r) = merge(e, part, t) {
+            return r;
+        }
+    }
+    if n < INLINE {
+        rec.seen[n] = pack_entry(part, t);
+        rec.hot.inline += 1;
+        return Some(t);
+    }
+    let mut b = rec.more;
+    let mut last = 0;
+    let mut chain = 0;
+    while b != 0 {
+        let bucket = &mut buckets[b as usize - 1];
+        for e in &mut bucket.seen[..bucket.len as usize] {
+            if let Some(r) = merge(e, part, t) {
+                return r;
+            }
+        }
+        last = b;
+        b = bucket.next;
+        chain += 1;
+    }
+    if rec.hot.flags & Hot::SPILLED != 0 {
+        return spill.admit((u64::from(f) << 32) | u64::from(part), t);
+    }
+    if last != 0 {
+        let bucket = &mut buckets[last as usize - 1];
+        if (bucket.len as usize) < bucket.seen.len() {
+            bucket.seen[bucket.len as usize] = pack_entry(part, t);
+            bucket.len += 1;
+            return Some(t);
+        }
+    }
+    if chain < MAX_CHAIN && buckets.len() < u32::MAX as usize - 1 {
+        let mut seen = [0; 7];
+        seen[0] = pack_entry(part, t);
+        buckets.push(Bucket {
+            seen,
+            len: 1,
+            next: 0,
+        });
+        let new = buckets.len() as u32;
+        if last == 0 {
+            rec.more = new;
+        } else {
+            buckets[last as usize - 1].next = new;
+        }
+        return Some(t);
+    }
+    rec.hot.flags |= Hot::SPILLED;
+    spill.admit((u64::from(f) << 32) | u64::from(part), t)
+}
+
 pub fn gcd(a: u32, b: u32) -> u32 {
     if b == 0 { a.max(1) } else { gcd(b, a % b) }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn admission_agrees_with_a_hash_map_in_record_chain_and_spill() {
+        // The standard library's map as the reference, keyed as the joint search keys a state
+        // (faulty node, twin part), over timers from a seeded generator. Up to 160 parts per
+        // node: some nodes stay within their record, some fill their chain and spill.
+        let empty = Rec {
+            hot: Hot {
+                open: 0.0,
+                mask0: 0,
+                faults: 0,
+                mode: 0,
+                flags: 0,
+                inline: 0,
+            },
+            more: 0,
+            lone: 0,
+            seen: [0; INLINE],
+        };
+        let nodes = 600u64;
+        let mut recs = vec![empty; nodes as usize];
+        let (mut buckets, mut spill) = (Vec::new(), JointSet::default());
+        let mut m: std::collections::HashMap<(u32, u32), Timers> = Default::default();
+        let mut x = 0x2545_f491_4f6c_dd1du64;
+        for _ in 0..150_000 {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            let f = (x % nodes) as u32;
+            // Node f holds up to 1 + f % 160 twin parts.
+            let part = ((x >> 16) % (1 + u64::from(f) % 160)) as u32;
+            let t = Timers {
+                excess: (x >> 40) as u16 % 50,
+                released: (x >> 50) as u16 % 300,
+            };
+            let want = match m.get_mut(&(f, part)) {
+                Some(o) if o.excess >= t.excess && o.released >= t.released => None,
+                Some(o) => {
+                    o.excess = o.excess.max(t.excess);
+                    o.released = o.released.max(t.released);
+                    Some(*o)
+                }
+                None => {
+                    m.insert((f, part), t);
+                    Some(t)
+                }
+            };
+            assert_eq!(admit(&mut recs, &mut buckets, &mut spill, f, part, t), want);
+        }
+        let spilled = recs.iter().filter(|r| r.hot.flags & Hot::SPILLED != 0);
+        let inline_only = recs.iter().filter(|r| r.more == 0 && r.hot.inline > 0);
+        assert!(spilled.count() > 0 && inline_only.count() > 0);
+        assert!(!spill.is_empty() && !buckets.is_empty());
+    }
 }

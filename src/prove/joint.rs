@@ -1,11 +1,12 @@
-//! The search's two large tables, each open-addressed with linear probing: the joint visited
+//! The search's two large tables, each open-addressed with linear probing: a joint visited
 //! set (packed 64-bit keys of faulty node, twin and detection, with the requirement timers each
-//! was reached with) and the faulty graph's index (128-bit state digests to node numbers).
+//! was reached with), which holds the joint entries a faulty node's own record has no room
+//! for (see `faulty::Faulty::admit`), and the faulty graph's index (128-bit state digests to
+//! node numbers).
 //!
 //! A general hash map keeps its tags apart from its entries, so a lookup in a table far larger
 //! than the caches misses twice; here a slot holds key and value together and a lookup usually
-//! misses once. The search also announces its next visited-set lookups (`prefetch`) so that
-//! the misses of one state's successors overlap.
+//! misses once.
 
 use super::search::Timers;
 
@@ -62,23 +63,6 @@ impl JointSet {
         self.len == 0
     }
 
-    /// Asks the processor to fetch the slot `key` starts its probe at (a hint only).
-    #[inline]
-    pub fn prefetch(&self, key: u64) {
-        #[cfg(target_arch = "x86_64")]
-        {
-            let i = slot_of(key, self.slots.len() - 1);
-            let p = self.slots.as_ptr().wrapping_add(i).cast::<i8>();
-            // SAFETY: a prefetch is a hint that never faults, whatever the address; `i` is in
-            // bounds anyway.
-            unsafe {
-                std::arch::x86_64::_mm_prefetch(p, std::arch::x86_64::_MM_HINT_T0);
-            }
-        }
-        #[cfg(not(target_arch = "x86_64"))]
-        let _ = key;
-    }
-
     /// Records a state reached with timers `t`. Its timers take part by dominance rather than
     /// in the key: a state reached again no further on in either timer is not expanded again;
     /// otherwise its timers become the larger of the two in each, and the state goes on with
@@ -101,14 +85,7 @@ impl JointSet {
                 return Some(t);
             }
             if s[0] == hi && s[1] == lo {
-                let old = unpack(s[2]);
-                if old.excess >= t.excess && old.released >= t.released {
-                    return None;
-                }
-                let new = Timers {
-                    excess: old.excess.max(t.excess),
-                    released: old.released.max(t.released),
-                };
+                let new = unpack(s[2]).absorb(t)?;
                 s[2] = pack(new);
                 return Some(new);
             }

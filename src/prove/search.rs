@@ -6,7 +6,6 @@
 //! before is not expanded again.
 
 use super::faulty::{DROPPED, Faulty};
-use super::joint::JointSet;
 use super::{Config, Requirement as Req};
 use crate::faults::{ActiveFault, Injection};
 use crate::model::Model;
@@ -84,6 +83,22 @@ pub struct Timers {
     pub excess: u16,
     /// Consecutive steps with the driver's pedal at 0 %.
     pub released: u16,
+}
+
+impl Timers {
+    /// Dominance of requirement timers: `None` when `self` (a state's stored timers) covers
+    /// `t` (no further on in either timer), else the larger of each, which the state goes on
+    /// with. See [`super::joint::JointSet::admit`].
+    #[inline]
+    pub fn absorb(self, t: Timers) -> Option<Timers> {
+        if self.excess >= t.excess && self.released >= t.released {
+            return None;
+        }
+        Some(Timers {
+            excess: self.excess.max(t.excess),
+            released: self.released.max(t.released),
+        })
+    }
 }
 
 /// A fault-free state: the vehicle, the pedal grid index it was driven with last, its timers,
@@ -720,26 +735,6 @@ struct Joint {
     id: u32,
 }
 
-/// A fast hasher for small integer keys (the lone futures' faulty nodes).
-#[derive(Default)]
-pub struct MixU64(u64);
-
-impl Hasher for MixU64 {
-    fn finish(&self) -> u64 {
-        let mut z = self.0;
-        z = (z ^ (z >> 32)).wrapping_mul(0xd6e8_feb8_6659_fd93);
-        z ^ (z >> 32)
-    }
-    fn write(&mut self, bytes: &[u8]) {
-        for &b in bytes {
-            self.0 = self.0.rotate_left(8) ^ u64::from(b);
-        }
-    }
-    fn write_u32(&mut self, i: u32) {
-        self.0 ^= u64::from(i);
-    }
-}
-
 /// Searches one fault, or a pair: the first of a pair is injected into every fault-free
 /// state, the second arrives at a later step the search chooses.
 ///
@@ -747,7 +742,7 @@ impl Hasher for MixU64 {
 /// (see [`Faulty`], stepped lazily, each successor once) and the fault-free set, both moved by
 /// the same pedal action. A joint state pairs a faulty node with its twin (by the twin's index
 /// with `exact_twin`, else by its plate) and is expanded once per timer dominance (see
-/// [`JointSet::admit`]).
+/// [`Faulty::admit`]).
 pub fn search_fault<'v>(
     vehicle: &'v Vehicle,
     pre: &PreSet<'v>,
@@ -782,11 +777,9 @@ pub fn search_fault<'v>(
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         ..FaultResult::default()
     };
-    let mut visited = JointSet::default();
-    // The lone futures of vehicles the driver no longer steers, by faulty node (see
-    // `LoneFuture`).
-    let mut tails: std::collections::HashMap<u32, LoneFuture, BuildHasherDefault<MixU64>> =
-        Default::default();
+    // The lone futures of vehicles the driver no longer steers (see `LoneFuture`), each
+    // recorded in its faulty node.
+    let mut tails: Vec<LoneFuture> = Vec::new();
     let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored state
     let mut frontier: Vec<Joint> = Vec::new();
     let mut tail_scratch = (pre.nodes[0].sys.sample().clone(), Default::default());
@@ -802,9 +795,9 @@ pub fn search_fault<'v>(
             u64::from(pre.hot[t as usize].class)
         }
     };
-    let key = |f: u32, t: u32, detected: bool| -> u64 {
-        (u64::from(f) << 32) | (twin_part(t) << 1) | u64::from(detected)
-    };
+    // The joint key beside the faulty node (which holds it, see [`Faulty::admit`]).
+    let part =
+        |t: u32, detected: bool| -> u32 { ((twin_part(t) << 1) | u64::from(detected)) as u32 };
 
     // Roots: the fault injected into every fault-free state, i.e. at every injection instant
     // the fault-free set tells apart at the resolution.
@@ -842,7 +835,7 @@ pub fn search_fault<'v>(
             excess: 0,
             released: o.released,
         };
-        if visited.admit(key(f, oi as u32, false), timers).is_some() {
+        if fg.admit(f, part(oi as u32, false), timers).is_some() {
             frontier.push(Joint {
                 f,
                 t: oi as u32,
@@ -878,22 +871,24 @@ pub fn search_fault<'v>(
                 res.settled_early = true;
                 break 'search;
             }
-            // The visited slots of a state a few places ahead, where its successors are
-            // known already: their cache misses overlap with this state's work.
-            if let Some(ahead) = frontier.get(k + LOOKAHEAD) {
-                for (ai, f2) in fg.known(ahead.f) {
-                    visited.prefetch(key(f2, pre.step(ahead.t, ai), ahead.detected));
+            // The records of a state a few places ahead's successors, where they are known
+            // already: their cache misses overlap with this state's work.
+            if let Some(ahead) = frontier.get(k + LOOKAHEAD)
+                && ahead.f != node.f
+            {
+                for (_, f2) in fg.known(ahead.f) {
+                    fg.prefetch(f2);
                 }
             }
             let fi = node.f as usize;
             if since >= horizon {
-                end_modes[fg.hot[fi].mode as usize] = true;
+                end_modes[usize::from(fg.hot(node.f).mode)] = true;
                 if !node.detected {
                     res.undetected_branch = true;
                 }
                 continue;
             }
-            let here = fg.hot[fi];
+            let here = *fg.hot(node.f);
             actions(cfg, fg.pedal[fi], g.len(), &mut acts);
             let mut any_new = false;
             for (ai, &a) in acts.iter().enumerate() {
@@ -906,7 +901,7 @@ pub fn search_fault<'v>(
                         res.truncated = true;
                         continue;
                     }
-                    let there = fg.hot[f2 as usize];
+                    let there = *fg.hot(f2);
                     let t2 = pre.step(node.t, ai);
                     let driver = g[usize::from(a)];
                     let (open, open_n) = (there.open, pre.hot[t2 as usize].opening);
@@ -1019,22 +1014,29 @@ pub fn search_fault<'v>(
                         let done = if there.stuck() {
                             let held = !constant_can_violate(model, reqs, &found, open);
                             if held {
-                                end_modes[there.mode as usize] = true;
+                                end_modes[usize::from(there.mode)] = true;
                             }
                             held
                         } else if there.driver_in() {
                             false
                         } else {
-                            let lone = tails.entry(f2).or_insert_with(|| {
-                                LoneFuture::follow(
-                                    &mut fg,
-                                    model,
-                                    reqs,
-                                    f2,
-                                    horizon,
-                                    &mut tail_scratch,
-                                )
-                            });
+                            let li = match fg.lone(f2) {
+                                Some(li) => li,
+                                None => {
+                                    tails.push(LoneFuture::follow(
+                                        &mut fg,
+                                        model,
+                                        reqs,
+                                        f2,
+                                        horizon,
+                                        &mut tail_scratch,
+                                    ));
+                                    let li = tails.len() as u32 - 1;
+                                    fg.set_lone(f2, li);
+                                    li
+                                }
+                            };
+                            let lone = &tails[li as usize];
                             let harmless = lone.harmless(model, reqs, &found, timers);
                             if harmless {
                                 lone.fold_figures(
@@ -1049,7 +1051,7 @@ pub fn search_fault<'v>(
                             continue;
                         }
                     }
-                    let Some(t) = visited.admit(key(f2, t2, detected), timers) else {
+                    let Some(t) = fg.admit(f2, part(t2, detected), timers) else {
                         continue;
                     };
                     if arena.len() >= cfg.max_states.min(MAX_NODES) {
@@ -1068,7 +1070,7 @@ pub fn search_fault<'v>(
                 }
             }
             if !any_new {
-                end_modes[here.mode as usize] = true;
+                end_modes[usize::from(here.mode)] = true;
             }
             // Every successor this node will ever be asked for is known now.
             fg.release(node.f, root_nodes);
@@ -1211,7 +1213,7 @@ impl LoneFuture {
                 opens: Vec::new(),
                 suffix_peak: Vec::new(),
                 safe_at: None,
-                last_mode: fg.hot[fi].mode as usize,
+                last_mode: usize::from(fg.hot(f).mode),
             };
         }
         let mut st = fg.st[fi].clone();
@@ -1219,7 +1221,7 @@ impl LoneFuture {
         let mut prev = st.clone();
         let mut plate = fg.plate[fi];
         let step = fg.step[fi];
-        let faults = fg.hot[fi].faults as usize;
+        let faults = fg.hot(f).faults as usize;
         let mut positions = vec![0.0; model.sensors.len()];
         // An intermittent fault changes the inputs with time: no state repeats for good.
         let repeats = fg.cycle <= 1;
