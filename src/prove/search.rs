@@ -1077,8 +1077,10 @@ pub fn search_fault<'v>(
         }
         std::mem::swap(&mut frontier, &mut next_frontier);
         // Nodes beside the same faulty node one after the other: they share the faulty
-        // graph's rows.
-        frontier.sort_by_key(|j| j.f);
+        // graph's rows. In place (a stable sort would take a buffer of half the frontier each
+        // level); the frontier was pushed in order of `id`, so ties broken by it keep that
+        // order, as a stable sort would.
+        frontier.sort_unstable_by_key(|j| (j.f, j.id));
         since += 1;
     }
     res.states = arena.len();
