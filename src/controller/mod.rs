@@ -45,15 +45,15 @@
 //! and its counter is above `pass` (its debounce is running, in either direction); a time fault
 //! is pending while it is not set and its condition holds.
 
+mod cond;
 #[cfg(test)]
 pub(crate) mod fixture;
 #[cfg(test)]
 mod tests;
 
-use crate::model::{
-    Combine, Debounce, Demand, Edge, Expr, FaultId, Healing, ModeId, Model, Signal, Term, TrackRef,
-};
+use crate::model::{Combine, Debounce, Demand, Edge, FaultId, Healing, ModeId, Model, TrackRef};
 use crate::time::Time;
+use cond::{Cond, Num, Sig};
 
 /// What the controller's input pins see at one sample instant.
 #[derive(Clone, Debug, Default, PartialEq)]
@@ -402,6 +402,11 @@ pub struct Outputs {
     conds: Vec<bool>,
     /// Scratch: each plausibility fault held this step.
     holds: Vec<bool>,
+    /// Scratch: filtered percent per flattened track (as `tracks`, for compiled conditions).
+    percent: Vec<f64>,
+    /// Scratch: bit `f` for each set fault `f`, as of the last merge (models of up to 64
+    /// faults; see `Controller::masks`).
+    set_bits: u64,
 }
 
 /// Gains of the PI position loop.
@@ -479,6 +484,11 @@ pub struct Controller {
     alpha: Vec<f64>,
     /// Per flattened track: the faults that suspect it.
     suspecters: Vec<Vec<FaultId>>,
+    /// Per flattened track, the same as a bit mask, when the model has at most 64 faults.
+    masks: Option<Vec<u64>>,
+    /// Per fault, its condition compiled; per transition, its guard.
+    conds: Vec<Cond>,
+    guards: Vec<Cond>,
     plans: Vec<FaultPlan>,
     plain: Vec<FaultId>,
     plausible: Vec<FaultId>,
@@ -596,12 +606,31 @@ impl Controller {
             .collect();
         let (plausible, plain) =
             (0..model.faults.len()).partition(|&f| model.faults[f].plausibility);
+        let masks = (model.faults.len() <= 64).then(|| {
+            suspecters
+                .iter()
+                .map(|fs| fs.iter().fold(0u64, |m, &f| m | 1 << f))
+                .collect()
+        });
+        let conds = model
+            .faults
+            .iter()
+            .map(|f| Cond::compile(&f.condition, model, &index))
+            .collect();
+        let guards = model
+            .transitions
+            .iter()
+            .map(|t| Cond::compile(&t.guard, model, &index))
+            .collect();
         Controller {
             model: model.clone(),
             period: model.period.as_secs_f64(),
             base,
             alpha,
             suspecters,
+            masks,
+            conds,
+            guards,
             plans,
             plain,
             plausible,
@@ -650,14 +679,16 @@ impl Controller {
                 let i = self.base[s] + t;
                 let y = &mut st.volts[i];
                 *y += self.alpha[i] * (raw_volts(sample, s, t, sensor.open_reads) - *y);
-                out.tracks[s][t] = track.percent_at(*y);
+                let pct = track.percent_at(*y);
+                out.tracks[s][t] = pct;
+                out.percent[i] = pct;
             }
         }
 
         // 2. Monitors: conditions on the faults as they stood, then the debounces.
         self.merge(st, out);
         for f in 0..model.faults.len() {
-            let c = self.eval(&model.faults[f].condition, st, sample, out);
+            let c = self.eval(&self.conds[f], st, sample, out);
             out.conds[f] = c;
         }
         for &f in &self.plain {
@@ -679,7 +710,7 @@ impl Controller {
         // 3. At most one transition.
         if let Some(edges) = self.edges.get(st.mode) {
             for e in edges {
-                let held = self.eval(&model.transitions[e.transition].guard, st, sample, out);
+                let held = self.eval(&self.guards[e.transition], st, sample, out);
                 let d = &mut st.dwell[e.transition];
                 *d = if held { d.saturating_add(1) } else { 0 };
                 if *d >= self.dwell_need[e.transition] {
@@ -713,19 +744,32 @@ impl Controller {
         }
         out.conds.resize(m.faults.len(), false);
         out.holds.resize(m.faults.len(), false);
+        out.percent.resize(self.alpha.len(), 0.0);
     }
 
-    fn suspected_at(&self, st: &State, i: usize) -> bool {
-        self.suspecters[i].iter().any(|&f| st.faults[f].set)
+    /// Whether a set fault suspects flat track `i`, with the faults as of the last merge.
+    fn suspected_at(&self, st: &State, out: &Outputs, i: usize) -> bool {
+        match &self.masks {
+            Some(m) => m[i] & out.set_bits != 0,
+            None => self.suspecters[i].iter().any(|&f| st.faults[f].set),
+        }
     }
 
     /// Merged value per sensor over the tracks no set fault suspects; with none left, the side
-    /// that closes (0 % for `min`, 100 % for `max`).
+    /// that closes (0 % for `min`, 100 % for `max`). Records which faults are set, for
+    /// [`Controller::suspected_at`] until the faults next change.
     fn merge(&self, st: &State, out: &mut Outputs) {
+        if self.masks.is_some() {
+            out.set_bits = st
+                .faults
+                .iter()
+                .enumerate()
+                .fold(0, |m, (f, fs)| m | u64::from(fs.set) << f);
+        }
         for (s, sensor) in self.model.sensors.iter().enumerate() {
             let mut acc: Option<f64> = None;
             for (t, &pct) in out.tracks[s].iter().enumerate() {
-                if self.suspected_at(st, self.base[s] + t) {
+                if self.suspected_at(st, out, self.base[s] + t) {
                     continue;
                 }
                 acc = Some(match (acc, sensor.combine) {
@@ -741,11 +785,6 @@ impl Controller {
         }
     }
 
-    fn track_index(&self, t: TrackRef) -> Option<usize> {
-        let b = *self.base.get(t.sensor)?;
-        (t.track < self.model.sensors[t.sensor].tracks.len()).then_some(b + t.track)
-    }
-
     fn input(&self, sample: &Sample, i: usize) -> f64 {
         let raw = sample.inputs.get(i).copied().unwrap_or(0.0);
         match self.model.inputs.get(i) {
@@ -755,46 +794,39 @@ impl Controller {
     }
 
     /// A signal's value; NaN (every comparison false) for a reference outside the model.
-    fn signal(&self, sig: Signal, st: &State, sample: &Sample, out: &Outputs) -> f64 {
+    fn signal(&self, sig: Sig, st: &State, sample: &Sample, out: &Outputs) -> f64 {
         match sig {
-            Signal::Track { track } => out
-                .tracks
-                .get(track.sensor)
-                .and_then(|r| r.get(track.track))
-                .copied()
-                .unwrap_or(f64::NAN),
-            Signal::TrackVolts { track } => {
-                self.track_index(track).map_or(f64::NAN, |i| st.volts[i])
-            }
-            Signal::Merged { sensor } => out.merged.get(sensor).copied().unwrap_or(f64::NAN),
-            Signal::Input { input } => self.input(sample, input),
-            Signal::Target => st.target,
+            Sig::Percent(i) => out.percent[i],
+            Sig::Volts(i) => st.volts[i],
+            Sig::Merged(s) => out.merged[s],
+            Sig::Input(i) => self.input(sample, i),
+            Sig::Target => st.target,
+            Sig::Nan => f64::NAN,
         }
     }
 
-    fn eval(&self, e: &Expr, st: &State, sample: &Sample, out: &Outputs) -> bool {
-        match e {
-            Expr::True => true,
-            Expr::Fault { fault, .. } => st.faults.get(*fault).is_some_and(|f| f.set),
-            Expr::Suspect { track, .. } => self
-                .track_index(*track)
-                .is_some_and(|i| self.suspected_at(st, i)),
-            Expr::Switch { switch, .. } => sample.switches.get(*switch).copied().unwrap_or(false),
-            Expr::Compare { term, cmp, .. } => {
-                let v = match *term {
-                    Term::Signal { signal } => self.signal(signal, st, sample, out),
-                    Term::Diff { a, b } => {
+    /// A compiled condition's value, with the faults as of the last merge.
+    fn eval(&self, c: &Cond, st: &State, sample: &Sample, out: &Outputs) -> bool {
+        match c {
+            Cond::Const(b) => *b,
+            Cond::Set(f) => st.faults[*f].set,
+            Cond::Suspect(i) => self.suspected_at(st, out, *i),
+            Cond::Switch(i) => sample.switches.get(*i).copied().unwrap_or(false),
+            Cond::Cmp(n, cmp) => {
+                let v = match *n {
+                    Num::One(a) => self.signal(a, st, sample, out),
+                    Num::Diff(a, b) => {
                         self.signal(a, st, sample, out) - self.signal(b, st, sample, out)
                     }
-                    Term::AbsDiff { a, b } => {
+                    Num::AbsDiff(a, b) => {
                         (self.signal(a, st, sample, out) - self.signal(b, st, sample, out)).abs()
                     }
                 };
                 cmp.holds(v)
             }
-            Expr::Not { e } => !self.eval(e, st, sample, out),
-            Expr::And { es } => es.iter().all(|e| self.eval(e, st, sample, out)),
-            Expr::Or { es } => es.iter().any(|e| self.eval(e, st, sample, out)),
+            Cond::Not(e) => !self.eval(e, st, sample, out),
+            Cond::And(es) => es.iter().all(|e| self.eval(e, st, sample, out)),
+            Cond::Or(es) => es.iter().any(|e| self.eval(e, st, sample, out)),
         }
     }
 

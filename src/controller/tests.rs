@@ -2,7 +2,7 @@
 
 use super::fixture::*;
 use super::*;
-use crate::model::{Debounce, Healing, Source};
+use crate::model::{Debounce, Expr, Healing, Source};
 
 /// A test bench: the controller, its state, and a sample built from true positions with some
 /// tracks overridden by injected voltages. By default the plate follows the target exactly
@@ -932,4 +932,47 @@ fn a_pending_debounce_that_runs_out_reports_lapsed() {
     );
     assert!(!b.st.fault_pending(PEDAL_A_LOW));
     assert!(!b.st.fault_set(PEDAL_A_LOW));
+}
+
+#[test]
+fn suspicion_by_bit_mask_agrees_with_the_fault_lists() {
+    // The step reads "some set fault suspects this track" from a bit mask on models of up to
+    // 64 faults and from the lists otherwise: the two must give the same drive. A seeded walk
+    // of the pedal with tracks breaking and mending, so that faults set, heal and latch.
+    let m = van();
+    let mut masked = Bench::new(&m, 0.0);
+    let mut listed = Bench::new(&m, 0.0);
+    listed.c.masks = None;
+    let mut suspected = 0;
+    let mut x = 0x853c_49e6_748f_ea9bu64;
+    for step in 0..4000 {
+        x ^= x << 13;
+        x ^= x >> 7;
+        x ^= x << 17;
+        let pedal = (x % 101) as f64;
+        let broken = match (step / 250) % 4 {
+            0 => None,
+            1 => Some((PA, 0.0)),
+            2 => Some((PB, 4.9)),
+            _ => Some((PA, 4.9)),
+        };
+        for b in [&mut masked, &mut listed] {
+            b.pedal = pedal;
+            b.overrides.clear();
+            if let Some((t, v)) = broken {
+                b.brk(t, v);
+            }
+            b.step();
+        }
+        assert_eq!(masked.st, listed.st, "step {step}");
+        assert_eq!(masked.out.events, listed.out.events, "step {step}");
+        assert_eq!(masked.out.merged, listed.out.merged, "step {step}");
+        assert_eq!(masked.out.duty, listed.out.duty, "step {step}");
+        if (0..4).any(|t| masked.c.suspected_at(&masked.st, &masked.out, t)) {
+            suspected += 1;
+        }
+    }
+    assert!(masked.c.masks.is_some());
+    // The walk exercised suspicion, not only the all-clear.
+    assert!(suspected > 100, "{suspected}");
 }
