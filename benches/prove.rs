@@ -115,11 +115,13 @@ fn main() {
             ..Config::default()
         },
     );
-    // What one stored joint state costs by layout: its visited slot (12 bytes, the table
-    // between a quarter and half full), its path record (parent, pedal, origin: 9, padded to
-    // 12) and its place in the frontier while in flight (16); the faulty graph's nodes (the
-    // controller state, plate, successors, index) come on top, one per several joint states.
+    // What one stored joint state costs by layout: its entry beside its faulty node (8 bytes,
+    // in the node's own 64-byte record for its first four twins, then in 64-byte buckets of
+    // seven), its path record (parent, pedal, origin: 9, padded to 12) and its place in the
+    // frontier while in flight (20, twice while sorting); the faulty graph's nodes (the
+    // controller state until expanded, plate, successors, index slot) come on top, one per
+    // several joint states.
     println!(
-        "by layout: 24 to 48 bytes of visited table, 12 of path and 16 in flight per joint state, plus the faulty nodes"
+        "by layout: 8 to 10 bytes of entry, 12 of path and 20 in flight per joint state, plus the faulty nodes"
     );
 }
