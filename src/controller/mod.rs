@@ -165,19 +165,6 @@ impl State {
         .with_counters_at_pass(model)
     }
 
-    /// A state that holds only its mode: the placeholder for one whose every use is over (the
-    /// prover drops a node's memory once all its successors are known). Never to be stepped.
-    pub fn hollow(mode: ModeId) -> State {
-        State {
-            mode,
-            volts: Vec::new(),
-            target: 0.0,
-            integral: 0.0,
-            faults: Vec::new(),
-            dwell: Vec::new(),
-        }
-    }
-
     /// Counter debounces start at their pass threshold.
     fn with_counters_at_pass(mut self, model: &Model) -> State {
         for (fs, f) in self.faults.iter_mut().zip(&model.faults) {

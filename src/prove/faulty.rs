@@ -23,6 +23,8 @@ use crate::time::Time;
 const UNKNOWN: u32 = u32::MAX;
 /// A successor that would have been a new node past the bound on states.
 pub const DROPPED: u32 = u32::MAX - 1;
+/// The place of a released node's state (see [`Faulty::release`]).
+const RELEASED: u32 = u32::MAX;
 
 /// A faulty node as the joint search's inner loop reads it.
 #[derive(Clone, Copy, Debug)]
@@ -133,9 +135,13 @@ pub struct Faulty<'a> {
     stride: usize,
     pair: bool,
     max: usize,
-    pub st: Vec<State>,
-    /// Whose state has been released (see [`Faulty::release`]).
-    hollow: Vec<bool>,
+    /// Per node, its controller state's place in `states`, or [`RELEASED`].
+    slot: Vec<u32>,
+    /// The controller states of the nodes not released yet, with places freed by released
+    /// ones (`free`) taken again, buffers and all: memory in proportion to the nodes in
+    /// flight, and no allocation for a new node once the slab has grown.
+    states: Vec<State>,
+    free: Vec<u32>,
     pub plate: Vec<PlantState>,
     /// The absolute step of the node's first visitor (the next step happens at this instant).
     pub step: Vec<u32>,
@@ -199,8 +205,9 @@ impl<'a> Faulty<'a> {
             stride: actions * (1 + usize::from(pair)),
             pair,
             max,
-            st: Vec::new(),
-            hollow: Vec::new(),
+            slot: Vec::new(),
+            states: Vec::new(),
+            free: Vec::new(),
             plate: Vec::new(),
             step: Vec::new(),
             phase: Vec::new(),
@@ -233,21 +240,21 @@ impl<'a> Faulty<'a> {
     /// future taken at once, if it has one, but a root has not.
     pub fn release(&mut self, f: u32, roots: u32) {
         let fi = f as usize;
-        if f >= roots && !self.hollow[fi] {
-            let mode = self.st[fi].mode();
-            self.st[fi] = State::hollow(mode);
-            self.hollow[fi] = true;
+        if f >= roots && self.slot[fi] != RELEASED {
+            self.free.push(self.slot[fi]);
+            self.slot[fi] = RELEASED;
         }
     }
 
-    /// Whether node `f`'s state has been released.
-    pub fn is_hollow(&self, f: u32) -> bool {
-        self.hollow[f as usize]
+    /// Node `f`'s controller state, unless it has been released.
+    pub fn state(&self, f: u32) -> Option<&State> {
+        let s = self.slot[f as usize];
+        (s != RELEASED).then(|| &self.states[s as usize])
     }
 
     /// Nodes stored so far.
     pub fn nodes(&self) -> usize {
-        self.st.len()
+        self.slot.len()
     }
 
     /// The monitors set in node `f`, as 64-bit words.
@@ -336,12 +343,12 @@ impl<'a> Faulty<'a> {
             self.spare = Some(st);
             return i;
         }
-        if self.st.len() >= self.max {
+        if self.slot.len() >= self.max {
             self.truncated = true;
             self.spare = Some(st);
             return DROPPED;
         }
-        let i = self.st.len() as u32;
+        let i = self.slot.len() as u32;
         self.index.insert(k, i);
         push_monitor_words(model.faults.len(), |f| st.fault_set(f), &mut self.masks);
         let flag = |b: bool, f: u8| if b { f } else { 0 };
@@ -361,8 +368,17 @@ impl<'a> Faulty<'a> {
             lone: 0,
             seen: [0; INLINE],
         });
-        self.st.push(st);
-        self.hollow.push(false);
+        match self.free.pop() {
+            Some(s) => {
+                // The released state that held the place becomes the spare buffer.
+                self.spare = Some(std::mem::replace(&mut self.states[s as usize], st));
+                self.slot.push(s);
+            }
+            None => {
+                self.slot.push(self.states.len() as u32);
+                self.states.push(st);
+            }
+        }
         self.plate.push(plate);
         self.step.push(step);
         self.phase.push(phase);
@@ -394,19 +410,21 @@ impl<'a> Faulty<'a> {
         }
         let model = self.vehicle.ctl.model();
         let fi = f as usize;
-        if self.hollow[fi] {
+        let from = self.slot[fi];
+        if from == RELEASED {
             // Cannot happen (a node is released only once all its successors are known); if it
             // did, the branch is cut as at the bound, on the side of "inconclusive".
             self.truncated = true;
             return DROPPED;
         }
         let now = Time(model.period.0 * u64::from(self.step[fi]));
+        let here = &self.states[from as usize];
         let mut st = match self.spare.take() {
             Some(mut s) => {
-                s.clone_from(&self.st[fi]);
+                s.clone_from(here);
                 s
             }
-            None => self.st[fi].clone(),
+            None => here.clone(),
         };
         let mut plate = self.plate[fi];
         let mut faults = self.recs[fi].hot.faults;

@@ -1247,7 +1247,7 @@ impl LoneFuture {
         let fi = f as usize;
         let period = model.period;
         let vehicle = fg.vehicle();
-        if fg.is_hollow(f) {
+        let Some(st) = fg.state(f) else {
             // Cannot happen (a lone future is taken when its node is made); if it did, the
             // search goes on as if the driver were back.
             return LoneFuture {
@@ -1258,8 +1258,8 @@ impl LoneFuture {
                 safe_at: None,
                 last_mode: usize::from(fg.hot(f).mode),
             };
-        }
-        let mut st = fg.st[fi].clone();
+        };
+        let mut st = st.clone();
         // The state before each step, to see a step that changed nothing in the cone.
         let mut prev = st.clone();
         let mut plate = fg.plate[fi];
