@@ -577,18 +577,7 @@ mod tests {
                 excess: (x >> 40) as u16 % 50,
                 released: (x >> 50) as u16 % 300,
             };
-            let want = match m.get_mut(&(f, part)) {
-                Some(o) if o.excess >= t.excess && o.released >= t.released => None,
-                Some(o) => {
-                    o.excess = o.excess.max(t.excess);
-                    o.released = o.released.max(t.released);
-                    Some(*o)
-                }
-                None => {
-                    m.insert((f, part), t);
-                    Some(t)
-                }
-            };
+            let want = super::super::joint::admit_by_map(&mut m, (f, part), t);
             assert_eq!(admit(&mut recs, &mut buckets, &mut spill, f, part, t), want);
         }
         let spilled = recs.iter().filter(|r| r.hot.flags & Hot::SPILLED != 0);
