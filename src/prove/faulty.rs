@@ -9,7 +9,7 @@
 
 use super::Config;
 use super::cone::{Cone, ConeCache};
-use super::joint::{DigestIndex, JointSet};
+use super::joint::{DigestIndex, JointSet, pack, unpack};
 use super::search::{
     FaultLists, Timers, break_into, digest, encode_plate, grid, monitor_words, push_monitor_words,
 };
@@ -101,7 +101,7 @@ struct Bucket {
 }
 
 fn pack_entry(part: u32, t: Timers) -> u64 {
-    (u64::from(part) << 32) | (u64::from(t.excess) << 16) | u64::from(t.released)
+    (u64::from(part) << 32) | u64::from(pack(t))
 }
 
 /// Merges timers `t` into entry `e` if it is `part`'s: `Some(None)` when `e` covers them
@@ -112,11 +112,7 @@ fn merge(e: &mut u64, part: u32, t: Timers) -> Option<Option<Timers>> {
     if (*e >> 32) as u32 != part {
         return None;
     }
-    let old = Timers {
-        excess: (*e >> 16) as u16,
-        released: *e as u16,
-    };
-    let new = old.absorb(t);
+    let new = unpack(*e as u32).absorb(t);
     if let Some(n) = new {
         *e = pack_entry(part, n);
     }

@@ -35,11 +35,12 @@ fn slot_of(key: u64, mask: usize) -> usize {
     (z ^ (z >> 32)) as usize & mask
 }
 
-fn pack(t: Timers) -> u32 {
+/// Timers in one word: the excess timer in the high half, the release timer in the low.
+pub(super) fn pack(t: Timers) -> u32 {
     (u32::from(t.excess) << 16) | u32::from(t.released)
 }
 
-fn unpack(v: u32) -> Timers {
+pub(super) fn unpack(v: u32) -> Timers {
     Timers {
         excess: (v >> 16) as u16,
         released: v as u16,
