@@ -9,7 +9,7 @@ use std::time::Instant;
 
 // The binary's allocator, so that the figures are the binary's.
 #[global_allocator]
-static ALLOC: limpet::alloc::HugeHint = limpet::alloc::HugeHint;
+static ALLOC: limpet::alloc::LargeBlocks = limpet::alloc::LargeBlocks;
 
 /// The process's peak resident set, in bytes (Linux: `getrusage`, in KiB).
 #[cfg(target_os = "linux")]

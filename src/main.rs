@@ -6,7 +6,7 @@ use std::io::Write;
 use std::process::ExitCode;
 
 #[global_allocator]
-static ALLOC: limpet::alloc::HugeHint = limpet::alloc::HugeHint;
+static ALLOC: limpet::alloc::LargeBlocks = limpet::alloc::LargeBlocks;
 
 /// Design, prove and review the limp-home policy of a drive-by-wire throttle.
 ///
