@@ -522,6 +522,17 @@ impl Controller {
 
     /// As [`Controller::new`] with loop gains of the caller's choosing.
     pub fn with_gains(model: &Model, gains: LoopGains) -> Controller {
+        Controller::build(model, gains, true)
+    }
+
+    /// A controller that reads suspicion from the fault lists, with no bit masks and no
+    /// condition folded onto them, whatever the model's size (a reference for the tests).
+    #[cfg(test)]
+    pub(crate) fn with_lists(model: &Model) -> Controller {
+        Controller::build(model, loop_gains(model), false)
+    }
+
+    fn build(model: &Model, gains: LoopGains, use_masks: bool) -> Controller {
         let mut base = Vec::with_capacity(model.sensors.len());
         let mut alpha = Vec::new();
         for s in &model.sensors {
@@ -593,21 +604,25 @@ impl Controller {
             .collect();
         let (plausible, plain) =
             (0..model.faults.len()).partition(|&f| model.faults[f].plausibility);
-        let masks = (model.faults.len() <= 64).then(|| {
+        let masks: Option<Vec<u64>> = (use_masks && model.faults.len() <= 64).then(|| {
             suspecters
                 .iter()
                 .map(|fs| fs.iter().fold(0u64, |m, &f| m | 1 << f))
                 .collect()
         });
+        let fold = |c: Cond| match &masks {
+            Some(m) => c.fold_masks(m),
+            None => c,
+        };
         let conds = model
             .faults
             .iter()
-            .map(|f| Cond::compile(&f.condition, model, &index))
+            .map(|f| fold(Cond::compile(&f.condition, model, &index)))
             .collect();
         let guards = model
             .transitions
             .iter()
-            .map(|t| Cond::compile(&t.guard, model, &index))
+            .map(|t| fold(Cond::compile(&t.guard, model, &index)))
             .collect();
         Controller {
             model: model.clone(),
@@ -792,13 +807,17 @@ impl Controller {
         }
     }
 
-    /// A compiled condition's value, with the faults as of the last merge.
+    /// A compiled condition's value, with the faults as of the last merge. Leaves are read
+    /// here, inline; only compound conditions recurse.
+    #[inline]
     fn eval(&self, c: &Cond, st: &State, sample: &Sample, out: &Outputs) -> bool {
         match c {
             Cond::Const(b) => *b,
             Cond::Set(f) => st.faults[*f].set,
             Cond::Suspect(i) => self.suspected_at(st, out, *i),
             Cond::Switch(i) => sample.switches.get(*i).copied().unwrap_or(false),
+            Cond::AnySet(m) => out.set_bits & m != 0,
+            Cond::NoneSet(m) => out.set_bits & m == 0,
             Cond::Cmp(n, cmp) => {
                 let v = match *n {
                     Num::One(a) => self.signal(a, st, sample, out),
@@ -811,9 +830,17 @@ impl Controller {
                 };
                 cmp.holds(v)
             }
+            _ => self.eval_compound(c, st, sample, out),
+        }
+    }
+
+    #[inline(never)]
+    fn eval_compound(&self, c: &Cond, st: &State, sample: &Sample, out: &Outputs) -> bool {
+        match c {
             Cond::Not(e) => !self.eval(e, st, sample, out),
             Cond::And(es) => es.iter().all(|e| self.eval(e, st, sample, out)),
             Cond::Or(es) => es.iter().any(|e| self.eval(e, st, sample, out)),
+            leaf => self.eval(leaf, st, sample, out),
         }
     }
 

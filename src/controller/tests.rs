@@ -942,7 +942,7 @@ fn suspicion_by_bit_mask_agrees_with_the_fault_lists() {
     let m = van();
     let mut masked = Bench::new(&m, 0.0);
     let mut listed = Bench::new(&m, 0.0);
-    listed.c.masks = None;
+    listed.c = Controller::with_lists(&m);
     let mut suspected = 0;
     let mut x = 0x853c_49e6_748f_ea9bu64;
     for step in 0..4000 {
