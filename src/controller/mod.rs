@@ -707,7 +707,10 @@ impl Controller {
                 self.advance(f, out.conds[f], &mut st.faults[f], &mut out.events);
             }
         }
-        self.merge(st, out);
+        // The merge again only if some fault set or cleared: otherwise it would give the same.
+        if self.masks.is_none() || set_word(st) != out.set_bits {
+            self.merge(st, out);
+        }
 
         // 3. At most one transition.
         if let Some(edges) = self.edges.get(st.mode) {
@@ -762,11 +765,7 @@ impl Controller {
     /// [`Controller::suspected_at`] until the faults next change.
     fn merge(&self, st: &State, out: &mut Outputs) {
         if self.masks.is_some() {
-            out.set_bits = st
-                .faults
-                .iter()
-                .enumerate()
-                .fold(0, |m, (f, fs)| m | u64::from(fs.set) << f);
+            out.set_bits = set_word(st);
         }
         for (s, sensor) in self.model.sensors.iter().enumerate() {
             let mut acc: Option<f64> = None;
@@ -975,6 +974,14 @@ impl Controller {
         out.duty = clamp(p + st.integral, -100.0, 100.0);
         out.drive_on = true;
     }
+}
+
+/// The set faults of a model of at most 64 faults as a bit word, bit `f` for fault `f`.
+fn set_word(st: &State) -> u64 {
+    st.faults
+        .iter()
+        .enumerate()
+        .fold(0, |m, (f, fs)| m | u64::from(fs.set) << f)
 }
 
 /// The pure step as a free function. It prepares the model on every call; callers that step
