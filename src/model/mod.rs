@@ -110,8 +110,11 @@ impl Track {
     /// coordinate, or the end segment for extrapolation.
     fn segment_by(&self, key: impl Fn(&(f64, f64)) -> f64, x: f64) -> (usize, usize) {
         let n = self.points.len();
-        if n < 2 {
-            return (0, 0);
+        match n {
+            0 | 1 => return (0, 0),
+            // The one segment, inside or extrapolated (what the search below gives).
+            2 => return (0, 1),
+            _ => {}
         }
         let increasing = key(&self.points[n - 1]) > key(&self.points[0]);
         for i in 0..n - 1 {
