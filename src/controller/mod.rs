@@ -737,7 +737,30 @@ impl Controller {
 
     /// Sizes the buffers of a state or outputs made for another model shape (a no-op, with no
     /// allocation, once they fit).
+    #[inline]
     fn shape(&self, st: &mut State, out: &mut Outputs) {
+        let m = &self.model;
+        let fits = st.volts.len() == self.alpha.len()
+            && st.faults.len() == m.faults.len()
+            && st.dwell.len() == m.transitions.len()
+            && out.merged.len() == m.sensors.len()
+            && out.tracks.len() == m.sensors.len()
+            && out
+                .tracks
+                .iter()
+                .zip(&m.sensors)
+                .all(|(row, s)| row.len() == s.tracks.len())
+            && out.conds.len() == m.faults.len()
+            && out.holds.len() == m.faults.len()
+            && out.percent.len() == self.alpha.len();
+        if !fits {
+            self.reshape(st, out);
+        }
+    }
+
+    /// [`Controller::shape`]'s work, when something does not fit.
+    #[cold]
+    fn reshape(&self, st: &mut State, out: &mut Outputs) {
         let m = &self.model;
         st.volts.resize(self.alpha.len(), 0.0);
         st.faults.resize(m.faults.len(), FaultState::default());
