@@ -156,10 +156,12 @@ impl Closed {
         };
         let f = motor + piece.a - p.coulomb.copysign(v);
         let (mut xn, mut vn) = (x, v);
-        for (j, b) in piece.blocks.iter().enumerate() {
-            if n >> j & 1 == 1 {
-                (xn, vn) = b.apply(xn, vn, f);
-            }
+        // The blocks of `n`'s set bits, lowest first (`n < 2^BLOCKS`, checked above).
+        let mut bits = n;
+        while bits != 0 {
+            let b = &piece.blocks[bits.trailing_zeros() as usize];
+            (xn, vn) = b.apply(xn, vn, f);
+            bits &= bits - 1;
         }
         // Both ends strictly off the stops and inside the piece, the direction kept: by the
         // module's argument no event fell in between.
