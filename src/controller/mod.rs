@@ -51,7 +51,9 @@ pub(crate) mod fixture;
 #[cfg(test)]
 mod tests;
 
-use crate::model::{Combine, Debounce, Demand, Edge, FaultId, Healing, ModeId, Model, TrackRef};
+use crate::model::{
+    Combine, Compare, Debounce, Demand, Edge, FaultId, Healing, ModeId, Model, TrackRef,
+};
 use crate::time::Time;
 use cond::{Cond, Num, Sig};
 
@@ -690,7 +692,11 @@ impl Controller {
         // 2. Monitors: conditions on the faults as they stood, then the debounces.
         self.merge(st, out);
         for f in 0..model.faults.len() {
-            let c = self.eval(&self.conds[f], st, sample, out);
+            // Most conditions are one comparison: read here, without a call.
+            let c = match &self.conds[f] {
+                Cond::Cmp(n, cmp) => self.compare(*n, *cmp, st, sample, out),
+                c => self.eval(c, st, sample, out),
+            };
             out.conds[f] = c;
         }
         for &f in &self.plain {
@@ -840,20 +846,22 @@ impl Controller {
             Cond::Switch(i) => sample.switches.get(*i).copied().unwrap_or(false),
             Cond::AnySet(m) => out.set_bits & m != 0,
             Cond::NoneSet(m) => out.set_bits & m == 0,
-            Cond::Cmp(n, cmp) => {
-                let v = match *n {
-                    Num::One(a) => self.signal(a, st, sample, out),
-                    Num::Diff(a, b) => {
-                        self.signal(a, st, sample, out) - self.signal(b, st, sample, out)
-                    }
-                    Num::AbsDiff(a, b) => {
-                        (self.signal(a, st, sample, out) - self.signal(b, st, sample, out)).abs()
-                    }
-                };
-                cmp.holds(v)
-            }
+            Cond::Cmp(n, cmp) => self.compare(*n, *cmp, st, sample, out),
             _ => self.eval_compound(c, st, sample, out),
         }
+    }
+
+    /// A compiled comparison's value.
+    #[inline(always)]
+    fn compare(&self, n: Num, cmp: Compare, st: &State, sample: &Sample, out: &Outputs) -> bool {
+        let v = match n {
+            Num::One(a) => self.signal(a, st, sample, out),
+            Num::Diff(a, b) => self.signal(a, st, sample, out) - self.signal(b, st, sample, out),
+            Num::AbsDiff(a, b) => {
+                (self.signal(a, st, sample, out) - self.signal(b, st, sample, out)).abs()
+            }
+        };
+        cmp.holds(v)
     }
 
     #[inline(never)]
