@@ -875,6 +875,7 @@ impl Controller {
     }
 
     /// One debounce step of fault `f` with its condition `cond`.
+    #[inline(always)]
     fn advance(&self, f: FaultId, cond: bool, fs: &mut FaultState, events: &mut Vec<Event>) {
         let plan = &self.plans[f];
         match plan.rule {
