@@ -168,14 +168,16 @@ pub fn sensor_volts(
     };
     let mut supply = model.supply;
     let mut ground = 0.0;
+    // Whether a track fault is on this sensor: without one, steps 2 to 5 change nothing.
+    let mut touched = false;
     for f in active {
-        if let Injection::Sensor { sensor: at, fault } = f.injection
-            && at == sensor
-        {
-            match fault {
+        match f.injection {
+            Injection::Sensor { sensor: at, fault } if at == sensor => match fault {
                 SensorFault::Supply { volts } => supply = volts,
                 SensorFault::GroundOffset { volts } => ground += volts,
-            }
+            },
+            Injection::Track { track, .. } if track.sensor == sensor => touched = true,
+            _ => {}
         }
     }
     let scale = if model.supply > 0.0 {
@@ -183,6 +185,12 @@ pub fn sensor_volts(
     } else {
         1.0
     };
+    if !touched {
+        for (track, v) in s.tracks.iter().zip(out.iter_mut()) {
+            *v = track.volts_at(true_percent) * scale + ground;
+        }
+        return;
+    }
     let on_track = |f: &ActiveFault, i: usize| match f.injection {
         Injection::Track { track, fault } if track.sensor == sensor && track.track == i => {
             Some(fault)
