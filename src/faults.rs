@@ -168,7 +168,7 @@ pub fn sensor_volts(
     };
     let mut supply = model.supply;
     let mut ground = 0.0;
-    // Whether a track fault is on this sensor: without one, steps 2 to 5 change nothing.
+    // Whether a track fault is on this sensor: without one, steps 2 to 5 have nothing to do.
     let mut touched = false;
     for f in active {
         match f.injection {
@@ -185,12 +185,8 @@ pub fn sensor_volts(
     } else {
         1.0
     };
-    if !touched {
-        for (track, v) in s.tracks.iter().zip(out.iter_mut()) {
-            *v = track.volts_at(true_percent) * scale + ground;
-        }
-        return;
-    }
+    // The faults the track passes below read: none when no track fault is on this sensor.
+    let on_tracks: &[ActiveFault] = if touched { active } else { &[] };
     let on_track = |f: &ActiveFault, i: usize| match f.injection {
         Injection::Track { track, fault } if track.sensor == sensor && track.track == i => {
             Some(fault)
@@ -199,14 +195,14 @@ pub fn sensor_volts(
     };
     for (i, (track, v)) in s.tracks.iter().zip(out.iter_mut()).enumerate() {
         let mut volts = track.volts_at(true_percent) * scale + ground;
-        for f in active {
+        for f in on_tracks {
             match on_track(f, i) {
                 Some(TrackFault::Offset { volts: x }) => volts += x,
                 Some(TrackFault::Gain { factor }) => volts *= factor,
                 _ => {}
             }
         }
-        for f in active {
+        for f in on_tracks {
             match on_track(f, i) {
                 Some(TrackFault::Open) => volts = s.open_reads,
                 Some(TrackFault::ShortGround) => volts = 0.0,
@@ -223,7 +219,7 @@ pub fn sensor_volts(
         *v = volts;
     }
     let n = s.tracks.len().min(out.len());
-    for f in active {
+    for f in on_tracks {
         if let Injection::Track {
             track,
             fault: TrackFault::Bridged { other },
