@@ -108,38 +108,31 @@ impl Cond {
     /// commute over operands without side effects.
     pub(super) fn fold_masks(self, suspecters: &[u64]) -> Cond {
         let fold = |es: Box<[Cond]>, any: bool| -> Cond {
-            let mut mask = 0u64;
-            let mut folded = 0;
-            let mut rest = Vec::new();
+            let node = |v: Vec<Cond>| {
+                if any {
+                    Cond::Or(v.into())
+                } else {
+                    Cond::And(v.into())
+                }
+            };
+            // Operands that fold: in an `or` a fault or suspect reference (or a folded
+            // `or`), in an `and` a negated one (or a folded `and`).
+            let (mut mask, mut folded, mut rest) = (0u64, false, Vec::new());
             for e in es.into_vec() {
                 let e = e.fold_masks(suspecters);
-                let m = if any {
-                    e.set_mask(suspecters)
-                } else if let Cond::Not(inner) = &e {
-                    inner.set_mask(suspecters)
-                } else if let Cond::NoneSet(m) = e {
-                    Some(m)
-                } else {
-                    None
+                let m = match (&e, any) {
+                    (Cond::AnySet(m), true) | (Cond::NoneSet(m), false) => Some(*m),
+                    (Cond::Not(inner), false) => inner.set_mask(suspecters),
+                    (_, true) => e.set_mask(suspecters),
+                    (_, false) => None,
                 };
-                let m = m.or(match e {
-                    Cond::AnySet(m) if any => Some(m),
-                    _ => None,
-                });
                 match m {
-                    Some(m) => {
-                        mask |= m;
-                        folded += 1;
-                    }
+                    Some(m) => (mask, folded) = (mask | m, true),
                     None => rest.push(e),
                 }
             }
-            if folded == 0 {
-                return if any {
-                    Cond::Or(rest.into())
-                } else {
-                    Cond::And(rest.into())
-                };
+            if !folded {
+                return node(rest);
             }
             let leaf = if any {
                 Cond::AnySet(mask)
@@ -150,11 +143,7 @@ impl Cond {
                 return leaf;
             }
             rest.insert(0, leaf);
-            if any {
-                Cond::Or(rest.into())
-            } else {
-                Cond::And(rest.into())
-            }
+            node(rest)
         };
         match self {
             Cond::Or(es) => fold(es, true),
