@@ -58,20 +58,31 @@ mod map {
     });
 
     impl Store {
+        /// Adds a mapping (there is a free slot).
+        fn push(&mut self, p: usize, l: usize) {
+            self.blocks[self.len] = (p, l);
+            self.len += 1;
+            self.bytes += l;
+        }
+
+        /// Removes the `i`-th mapping and gives it back.
+        fn remove(&mut self, i: usize) -> (usize, usize) {
+            let b = self.blocks[i];
+            self.len -= 1;
+            self.blocks[i] = self.blocks[self.len];
+            self.bytes -= b.1;
+            b
+        }
+
         /// Takes the smallest kept mapping of at least `want` bytes, its surplus kept back
         /// (a mapping's whole granules are mappings in their own right).
         fn take(&mut self, want: usize) -> Option<usize> {
             let i = (0..self.len)
                 .filter(|&i| self.blocks[i].1 >= want)
                 .min_by_key(|&i| self.blocks[i].1)?;
-            let (p, l) = self.blocks[i];
-            self.len -= 1;
-            self.blocks[i] = self.blocks[self.len];
-            self.bytes -= l;
+            let (p, l) = self.remove(i);
             if l > want {
-                self.blocks[self.len] = (p + want, l - want);
-                self.len += 1;
-                self.bytes += l - want;
+                self.push(p + want, l - want);
             }
             Some(p)
         }
@@ -85,21 +96,16 @@ mod map {
             while self.len == SLOTS || self.bytes + l > KEEP {
                 // Not empty: an empty store has room for `l <= KEEP` bytes.
                 let i = (0..self.len).min_by_key(|&i| self.blocks[i].1)?;
-                let (q, m) = self.blocks[i];
-                if m >= l {
+                if self.blocks[i].1 >= l {
                     return Some((p, l));
                 }
-                self.len -= 1;
-                self.blocks[i] = self.blocks[self.len];
-                self.bytes -= m;
+                let (q, m) = self.remove(i);
                 // SAFETY: a kept mapping is owned by the store alone.
                 unsafe {
                     libc::munmap(q as *mut libc::c_void, m);
                 }
             }
-            self.blocks[self.len] = (p, l);
-            self.len += 1;
-            self.bytes += l;
+            self.push(p, l);
             None
         }
     }
