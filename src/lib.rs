@@ -20,3 +20,17 @@ pub mod report;
 pub mod review;
 pub mod sim;
 pub mod time;
+
+/// Helpers shared by the unit tests.
+#[cfg(test)]
+pub(crate) mod testing {
+    /// One step of Marsaglia's xorshift64 (shifts 13, 7, 17; "Xorshift RNGs", J. Stat.
+    /// Softw. 8(14), 2003): the seeded generator the randomised tests draw from. Returns the
+    /// new state.
+    pub fn xorshift(x: &mut u64) -> u64 {
+        *x ^= *x << 13;
+        *x ^= *x >> 7;
+        *x ^= *x << 17;
+        *x
+    }
+}

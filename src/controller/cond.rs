@@ -175,15 +175,8 @@ mod tests {
         }
     }
 
-    fn next(x: &mut u64) -> u64 {
-        *x ^= *x << 13;
-        *x ^= *x >> 7;
-        *x ^= *x << 17;
-        *x
-    }
-
     fn tree(x: &mut u64, depth: u32) -> Cond {
-        let r = next(x);
+        let r = crate::testing::xorshift(x);
         match if depth == 0 { r % 3 } else { r % 6 } {
             0 => Cond::Set((r >> 8) as usize % 6),
             1 => Cond::Suspect((r >> 8) as usize % 4),

@@ -946,9 +946,7 @@ fn suspicion_by_bit_mask_agrees_with_the_fault_lists() {
     let mut suspected = 0;
     let mut x = 0x853c_49e6_748f_ea9bu64;
     for step in 0..4000 {
-        x ^= x << 13;
-        x ^= x >> 7;
-        x ^= x << 17;
+        crate::testing::xorshift(&mut x);
         let pedal = (x % 101) as f64;
         let broken = match (step / 250) % 4 {
             0 => None,

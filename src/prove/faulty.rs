@@ -563,9 +563,7 @@ mod tests {
         let mut m: std::collections::HashMap<(u32, u32), Timers> = Default::default();
         let mut x = 0x2545_f491_4f6c_dd1du64;
         for _ in 0..150_000 {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
+            crate::testing::xorshift(&mut x);
             let f = (x % nodes) as u32;
             // Node f holds up to 1 + f % 160 twin parts.
             let part = ((x >> 16) % (1 + u64::from(f) % 160)) as u32;

@@ -242,9 +242,7 @@ mod tests {
         let mut m: std::collections::HashMap<u64, Timers> = Default::default();
         let mut x = 0x9e37_79b9_7f4a_7c15u64;
         for _ in 0..200_000 {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
+            crate::testing::xorshift(&mut x);
             let key = ((x % 5_000) << 32) | ((x >> 20) % 300);
             let t = Timers {
                 excess: (x >> 40) as u16 % 50,

@@ -1480,9 +1480,7 @@ mod tests {
         ] {
             let mut v: Vec<Joint> = (0..n)
                 .map(|i| {
-                    x ^= x << 13;
-                    x ^= x >> 7;
-                    x ^= x << 17;
+                    crate::testing::xorshift(&mut x);
                     Joint {
                         f: (x % span) as u32 + 7,
                         t: 0,
