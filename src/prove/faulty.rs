@@ -304,6 +304,51 @@ impl<'a> Faulty<'a> {
         )
     }
 
+    /// Fills the scratch buffer with the faulty vehicle's cell: the controller's memory within
+    /// the cone (continuous parts quantised), the plate, what the faults captured and an
+    /// intermittent fault's phase. Returns whether the driver's sensor is in the cone.
+    fn encode_cell(
+        &mut self,
+        st: &State,
+        plate: PlantState,
+        faults: u32,
+        phase: u32,
+        resolution: f64,
+    ) -> bool {
+        let model = self.vehicle.ctl.model();
+        let (rel, driver_in) = {
+            let c = self.cone.cached(&mut self.cache, model, st);
+            (&c.0, c.1)
+        };
+        self.buf.clear();
+        st.encode_relevant(model, resolution, rel, &mut self.buf);
+        encode_plate(plate, resolution, &mut self.buf);
+        for c in &self.lists.captured[faults as usize] {
+            self.buf.extend_from_slice(&c.to_le_bytes());
+        }
+        self.buf.extend_from_slice(&phase.to_le_bytes());
+        driver_in
+    }
+
+    /// The digest of a faulty vehicle's cell at `resolution` (see [`Faulty::encode_cell`]),
+    /// whatever the pedal, and whether the driver's sensor is in its cone.
+    pub fn cell(
+        &mut self,
+        st: &State,
+        plate: PlantState,
+        faults: u32,
+        phase: u32,
+        resolution: f64,
+    ) -> (u128, bool) {
+        let driver_in = self.encode_cell(st, plate, faults, phase, resolution);
+        (digest(&self.buf), driver_in)
+    }
+
+    /// Node `f`'s phase in an intermittent fault's cycle.
+    pub fn phase(&self, f: u32) -> u32 {
+        self.phase[f as usize]
+    }
+
     /// The node for a faulty vehicle in this state: an existing one with the same encoding
     /// (the state is given back to be reused), a new one, or [`DROPPED`] at the bound.
     #[allow(clippy::too_many_arguments)]
@@ -318,20 +363,8 @@ impl<'a> Faulty<'a> {
         second_in: bool,
     ) -> u32 {
         let model = self.vehicle.ctl.model();
-        let (rel, driver_in) = {
-            let c = self.cone.cached(&mut self.cache, model, &st);
-            (&c.0, c.1)
-        };
-        self.buf.clear();
-        // The key: the controller's memory within the cone (continuous parts quantised),
-        // the plate, what the faults captured, an intermittent fault's phase, the pedal and a
-        // pair's progress.
-        st.encode_relevant(model, self.resolution, rel, &mut self.buf);
-        encode_plate(plate, self.resolution, &mut self.buf);
-        for c in &self.lists.captured[faults as usize] {
-            self.buf.extend_from_slice(&c.to_le_bytes());
-        }
-        self.buf.extend_from_slice(&phase.to_le_bytes());
+        // The key: the vehicle's cell, the pedal and a pair's progress.
+        let driver_in = self.encode_cell(&st, plate, faults, phase, self.resolution);
         self.buf.push(pedal);
         self.buf.push(u8::from(second_in));
         let k = digest(&self.buf);

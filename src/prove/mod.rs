@@ -4,6 +4,7 @@
 pub mod cone;
 pub mod faulty;
 pub mod joint;
+mod lone;
 pub mod report;
 pub mod search;
 pub mod space;

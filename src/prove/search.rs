@@ -6,6 +6,7 @@
 //! before is not expanded again.
 
 use super::faulty::{DROPPED, Faulty};
+use super::lone::{LoneWalks, constant_can_violate};
 use super::{Config, Requirement as Req};
 use crate::faults::{ActiveFault, Injection};
 use crate::model::Model;
@@ -819,12 +820,16 @@ pub fn search_fault<'v>(
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         ..FaultResult::default()
     };
-    // The lone futures of vehicles the driver no longer steers (see `LoneFuture`), each
+    // The lone futures of vehicles the driver no longer steers (see `LoneWalks`), each
     // recorded in its faulty node.
-    let mut tails: Vec<LoneFuture> = Vec::new();
+    let mut walks = LoneWalks::new(
+        model,
+        pre.nodes[0].sys.sample().clone(),
+        cfg.max_states.min(MAX_NODES),
+        cfg.resolution,
+    );
     let mut arena: Vec<(u32, u8, u32)> = Vec::new(); // (parent, pedal, origin) per stored state
     let mut frontier: Vec<Joint> = Vec::new();
-    let mut tail_scratch = (pre.nodes[0].sys.sample().clone(), Default::default());
     let mut monitor_seen = vec![0u64; monitor_words(model.faults.len())];
     let mut end_modes = vec![false; model.modes.len()];
     let mut found = vec![false; reqs.len()];
@@ -1066,20 +1071,12 @@ pub fn search_fault<'v>(
                             let li = match fg.lone(f2) {
                                 Some(li) => li,
                                 None => {
-                                    tails.push(LoneFuture::follow(
-                                        &mut fg,
-                                        model,
-                                        reqs,
-                                        f2,
-                                        horizon,
-                                        &mut tail_scratch,
-                                    ));
-                                    let li = tails.len() as u32 - 1;
+                                    let li = walks.future(&mut fg, model, reqs, f2, horizon);
                                     fg.set_lone(f2, li);
                                     li
                                 }
                             };
-                            let lone = &tails[li as usize];
+                            let lone = &walks.futures[li as usize];
                             let harmless = lone.harmless(model, reqs, &found, timers);
                             if harmless {
                                 lone.fold_figures(
@@ -1190,275 +1187,6 @@ fn joint_path(
     (pedal, inject_step, second_step)
 }
 
-/// The one future of a faulty vehicle the driver no longer steers, followed once per node of
-/// the faulty graph and summarised so that its verdict can be read for any requirement
-/// timers and any set of requirements already found violated.
-///
-/// It is stepped exactly from the node's first visitor with the driver released, not walked
-/// through the graph: a walk through merged nodes could drift (a slowly settling plate
-/// merged with one at rest) where the vehicle itself does not. The worst fault-free twin is
-/// closed, so the excess is measured from the springs' default.
-#[derive(Clone, Debug)]
-struct LoneFuture {
-    end: LoneEnd,
-    /// One trace per requirement, in order.
-    traces: Vec<LoneTrace>,
-    /// The openings on the way, and the highest of each one's suffix.
-    opens: Vec<f32>,
-    suffix_peak: Vec<f32>,
-    /// The first step (from 1) in a safe mode, when it starts outside one.
-    safe_at: Option<u32>,
-    /// The mode it ends in.
-    last_mode: usize,
-}
-
-#[derive(Clone, Copy, Debug)]
-enum LoneEnd {
-    /// The driver came back into the cone (a mode change can bring the pedal back): the
-    /// search goes on as usual.
-    Reentered,
-    /// Followed to the horizon.
-    Horizon,
-    /// A fixed point: the rest of the future holds this opening for good.
-    Settled(f64),
-}
-
-#[derive(Clone, Copy, Debug)]
-enum LoneTrace {
-    /// Steps above the limit from the start on (the run that continues the excess timer),
-    /// and the longest run after that.
-    Excess { lead: u32, later: u32 },
-    /// Whether the opening ever goes above the ceiling.
-    Never { above: bool },
-    /// The last step (from 1) with the plate above idle, 0 if none.
-    Idle { last: u32 },
-}
-
-impl LoneFuture {
-    /// Follows node `f` for at most `steps` periods.
-    fn follow(
-        fg: &mut Faulty<'_>,
-        model: &Model,
-        reqs: &[Req],
-        f: u32,
-        steps: u32,
-        scratch: &mut (crate::controller::Sample, crate::controller::Outputs),
-    ) -> LoneFuture {
-        let fi = f as usize;
-        let period = model.period;
-        let vehicle = fg.vehicle();
-        let Some(st) = fg.state(f) else {
-            // Cannot happen (a lone future is taken when its node is made); if it did, the
-            // search goes on as if the driver were back.
-            return LoneFuture {
-                end: LoneEnd::Reentered,
-                traces: Vec::new(),
-                opens: Vec::new(),
-                suffix_peak: Vec::new(),
-                safe_at: None,
-                last_mode: usize::from(fg.hot(f).mode),
-            };
-        };
-        let mut st = st.clone();
-        // The state before each step, to see a step that changed nothing in the cone.
-        let mut prev = st.clone();
-        let mut plate = fg.plate[fi];
-        let step = fg.step[fi];
-        let faults = fg.hot(f).faults as usize;
-        let mut positions = vec![0.0; model.sensors.len()];
-        // An intermittent fault changes the inputs with time: no state repeats for good.
-        let repeats = fg.cycle <= 1;
-        let mut traces: Vec<LoneTrace> = reqs
-            .iter()
-            .map(|r| match r {
-                Req::Excess { .. } => LoneTrace::Excess { lead: 0, later: 0 },
-                Req::Never { .. } => LoneTrace::Never { above: false },
-                Req::Idle { .. } => LoneTrace::Idle { last: 0 },
-            })
-            .collect();
-        // The current run above each excess limit, and whether the leading one has ended.
-        let mut runs = vec![(0u32, false); reqs.len()];
-        let mut end = LoneEnd::Horizon;
-        let mut opens = Vec::new();
-        let was_safe = model.modes[st.mode()].is_safe();
-        let mut safe_at = None;
-        for k in 0..steps {
-            let now = Time(period.0 * (u64::from(step) + u64::from(k)));
-            let before = plate;
-            prev.clone_from(&st);
-            crate::sim::system::period(
-                vehicle,
-                &mut st,
-                &mut plate,
-                &mut positions,
-                &fg.lists.lists[faults],
-                now,
-                period,
-                scratch,
-            );
-            if fg.cone.cached(&mut fg.cache, model, &st).1 {
-                end = LoneEnd::Reentered;
-                break;
-            }
-            let open = plate.position;
-            opens.push(open as f32);
-            if !was_safe && safe_at.is_none() && model.modes[st.mode()].is_safe() {
-                safe_at = Some(k + 1);
-            }
-            for ((r, t), run) in reqs.iter().zip(&mut traces).zip(&mut runs) {
-                match (*r, t) {
-                    (Req::Excess { limit, .. }, LoneTrace::Excess { lead, later }) => {
-                        if open - model.actuator.default > limit {
-                            run.0 += 1;
-                            if run.1 {
-                                *later = (*later).max(run.0);
-                            } else {
-                                *lead = run.0;
-                            }
-                        } else {
-                            *run = (0, true);
-                        }
-                    }
-                    (Req::Never { above: ceiling, .. }, LoneTrace::Never { above }) => {
-                        *above |= open > ceiling;
-                    }
-                    (Req::Idle { idle, .. }, LoneTrace::Idle { last }) => {
-                        if open > idle {
-                            *last = k + 1;
-                        }
-                    }
-                    _ => unreachable!("one trace per requirement, built alike"),
-                }
-            }
-            // Settled for good: a step that left the plate at rest where it was and nothing
-            // in the cone changed is a fixed point (the cone's parts evolve by themselves).
-            if repeats && plate == before && plate.velocity == 0.0 {
-                let (rel, _) = fg.cone.cached(&mut fg.cache, model, &prev);
-                if st.same_relevant(&prev, rel) {
-                    end = LoneEnd::Settled(open);
-                    break;
-                }
-            }
-        }
-        let mut suffix_peak = opens.clone();
-        for k in (1..suffix_peak.len()).rev() {
-            suffix_peak[k - 1] = suffix_peak[k - 1].max(suffix_peak[k]);
-        }
-        LoneFuture {
-            end,
-            traces,
-            opens,
-            suffix_peak,
-            safe_at,
-            last_mode: st.mode(),
-        }
-    }
-
-    /// Folds a harmless future, entered `since` steps after the injection with `timers`
-    /// beside twin `t`, into the figures of the matrix, as if the search had gone on. The
-    /// excess is worst when the twin closes fastest, so the twin is walked along the
-    /// fault-free set with the driver easing off each step, for as long as the future's
-    /// openings can still raise a figure.
-    #[allow(clippy::too_many_arguments)]
-    fn fold_figures(
-        &self,
-        res: &mut FaultResult,
-        model: &Model,
-        pre: &PreSet<'_>,
-        reqs: &[Req],
-        t: u32,
-        timers: Timers,
-        since: u32,
-    ) {
-        let period = model.period;
-        let d = |n: u32| Time(period.0 * u64::from(n));
-        let default = model.actuator.default;
-        if let Some(&peak) = self.suffix_peak.first() {
-            res.worst_opening_below_ceiling = res.worst_opening_below_ceiling.max(f64::from(peak));
-        }
-        if let Some(k) = self.safe_at {
-            let at = d(since + k);
-            res.to_safe = Some(res.to_safe.map_or(at, |w| w.max(at)));
-        }
-        for (r, tr) in reqs.iter().zip(&self.traces) {
-            if let (Req::Idle { .. }, LoneTrace::Idle { last }) = (*r, *tr)
-                && last > 0
-            {
-                // The driver released from now on: at most the few steps the pedal takes to
-                // reach 0 % more than any driver.
-                let at = d(u32::from(timers.released) + last);
-                res.worst_idle_after_release = res.worst_idle_after_release.max(at);
-            }
-        }
-        let limit = reqs
-            .iter()
-            .filter_map(|r| match *r {
-                Req::Excess { limit, .. } => Some(limit),
-                _ => None,
-            })
-            .fold(f64::INFINITY, f64::min);
-        let mut tw = t;
-        let mut run = u32::from(timers.excess);
-        for (&open, &rest) in self.opens.iter().zip(&self.suffix_peak) {
-            // Nothing further on can raise the worst excess or extend a run above a limit.
-            if f64::from(rest) - default <= res.worst_excess.min(limit) {
-                break;
-            }
-            tw = pre.hot[tw as usize].release;
-            let ex = f64::from(open) - pre.hot[tw as usize].opening.max(default);
-            res.worst_excess = res.worst_excess.max(ex);
-            if ex > limit {
-                run += 1;
-                res.worst_excess_duration = res.worst_excess_duration.max(d(run));
-            } else {
-                run = 0;
-            }
-        }
-    }
-
-    /// Whether this future breaks no requirement not yet `found` violated, when it starts
-    /// with the requirement timers `timers`.
-    fn harmless(&self, model: &Model, reqs: &[Req], found: &[bool], timers: Timers) -> bool {
-        if matches!(self.end, LoneEnd::Reentered) {
-            return false;
-        }
-        let broken = reqs
-            .iter()
-            .zip(&self.traces)
-            .zip(found)
-            .any(|((r, t), &done)| {
-                !done
-                    && match (*r, *t) {
-                        (Req::Excess { steps, .. }, LoneTrace::Excess { lead, later }) => {
-                            u32::from(timers.excess) + lead > steps || later > steps
-                        }
-                        (Req::Never { .. }, LoneTrace::Never { above }) => above,
-                        (Req::Idle { steps, .. }, LoneTrace::Idle { last }) => {
-                            last > 0 && u32::from(timers.released) + last >= steps
-                        }
-                        _ => unreachable!("one trace per requirement, built alike"),
-                    }
-            });
-        match self.end {
-            _ if broken => false,
-            LoneEnd::Settled(open) => !constant_can_violate(model, reqs, found, open),
-            _ => true,
-        }
-    }
-}
-
-/// Whether an opening held for good could still break a requirement not yet found violated,
-/// for some fault-free opening and driver: the twin may close to 0 % and the driver release.
-fn constant_can_violate(model: &Model, reqs: &[Req], found: &[bool], open: f64) -> bool {
-    reqs.iter().zip(found).any(|(r, &f)| {
-        !f && match *r {
-            Req::Excess { limit, .. } => open - model.actuator.default > limit,
-            Req::Never { above, .. } => open > above,
-            Req::Idle { idle, .. } => open > idle,
-        }
-    })
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1496,63 +1224,6 @@ mod tests {
             let key = |v: &[Joint]| v.iter().map(|j| (j.f, j.id)).collect::<Vec<_>>();
             assert_eq!(key(&v), key(&want), "{n} states over {span} nodes");
         }
-    }
-
-    #[test]
-    fn a_lone_future_reads_its_verdict_for_any_timers() {
-        // The requirement semantics of DEVELOPERS.md: an excess above the limit for more than
-        // `steps` periods, the opening above the ceiling, the plate above idle once the pedal
-        // has been at 0 % for `steps` periods.
-        let model = crate::model::lower(include_str!("../../scenarios/van/van_throttle.limp"))
-            .expect("the van lowers");
-        let reqs = [
-            Req::Excess {
-                limit: 5.0,
-                steps: 40,
-            },
-            Req::Never {
-                above: 90.0,
-                unless_driver: Some(90.0),
-            },
-            Req::Idle {
-                idle: 8.0,
-                steps: 200,
-            },
-        ];
-        let lone = |lead, later, above, last, end| LoneFuture {
-            end,
-            traces: vec![
-                LoneTrace::Excess { lead, later },
-                LoneTrace::Never { above },
-                LoneTrace::Idle { last },
-            ],
-            opens: Vec::new(),
-            suffix_peak: Vec::new(),
-            safe_at: None,
-            last_mode: 0,
-        };
-        let t = |excess, released| Timers { excess, released };
-        let none = [false; 3];
-        let f = lone(10, 0, false, 5, LoneEnd::Horizon);
-        // The leading run continues the excess timer: 30 + 10 = 40 is not more than 40.
-        assert!(f.harmless(&model, &reqs, &none, t(30, 0)));
-        assert!(!f.harmless(&model, &reqs, &none, t(31, 0)));
-        // The plate is above idle until step 5: released 195 + 5 reaches 200.
-        assert!(!f.harmless(&model, &reqs, &none, t(0, 195)));
-        assert!(f.harmless(&model, &reqs, &none, t(0, 194)));
-        // A requirement already found violated no longer counts.
-        assert!(f.harmless(&model, &reqs, &[true, false, true], t(31, 195)));
-        // A later run starts its own timer.
-        assert!(!lone(0, 41, false, 0, LoneEnd::Horizon).harmless(&model, &reqs, &none, t(0, 0)));
-        assert!(!lone(0, 0, true, 0, LoneEnd::Horizon).harmless(&model, &reqs, &none, t(0, 0)));
-        // Back in the driver's hands: the search goes on, whatever the traces.
-        assert!(!lone(0, 0, false, 0, LoneEnd::Reentered).harmless(&model, &reqs, &none, t(0, 0)));
-        // Settled for good: held above idle breaks the idle requirement in the end, at the
-        // springs' default it breaks nothing.
-        let default = model.actuator.default;
-        let held = |open| lone(0, 0, false, 0, LoneEnd::Settled(open));
-        assert!(!held(default + 2.0).harmless(&model, &reqs, &none, t(0, 0)));
-        assert!(held(default).harmless(&model, &reqs, &none, t(0, 0)));
     }
 
     #[test]
