@@ -41,6 +41,10 @@ pub(super) struct LoneFuture {
     safe_at: Option<u32>,
     /// The mode it ends in.
     pub last_mode: usize,
+    /// The openings' (as stored) leading run above the springs' default plus the smallest
+    /// excess limit, and the longest run after it: what bounds the excess runs a fold can
+    /// find, whatever the twin.
+    runs: (u32, u32),
 }
 
 #[derive(Clone, Copy, Debug)]
@@ -75,6 +79,7 @@ impl LoneFuture {
             suffix_peak: Vec::new(),
             safe_at: None,
             last_mode: mode,
+            runs: (0, 0),
         }
     }
 
@@ -114,13 +119,17 @@ impl LoneFuture {
                 res.worst_idle_after_release = res.worst_idle_after_release.max(at);
             }
         }
-        let limit = reqs
-            .iter()
-            .filter_map(|r| match *r {
-                Req::Excess { limit, .. } => Some(limit),
-                _ => None,
-            })
-            .fold(f64::INFINITY, f64::min);
+        let limit = smallest_excess_limit(reqs);
+        // The twin only lowers the excess below the opening's height over the default: when
+        // neither that height nor the runs above the limit can reach the figures already
+        // found, walking the twin would change nothing.
+        let (lead, later) = self.runs;
+        let longest = (u32::from(timers.excess) + lead).max(later);
+        if self.suffix_peak.first().is_none_or(|&p| {
+            f64::from(p) - default <= res.worst_excess && d(longest) <= res.worst_excess_duration
+        }) {
+            return;
+        }
         let mut tw = t;
         let mut run = u32::from(timers.excess);
         for (&open, &rest) in self.opens.iter().zip(&self.suffix_peak) {
@@ -169,6 +178,16 @@ impl LoneFuture {
             _ => true,
         }
     }
+}
+
+/// The smallest limit of the excess requirements (infinite without one).
+fn smallest_excess_limit(reqs: &[Req]) -> f64 {
+    reqs.iter()
+        .filter_map(|r| match *r {
+            Req::Excess { limit, .. } => Some(limit),
+            _ => None,
+        })
+        .fold(f64::INFINITY, f64::min)
 }
 
 /// Whether an opening held for good could still break a requirement not yet found violated,
@@ -445,7 +464,7 @@ impl LoneWalks {
         if let (Some(n), Some(e)) = (here.node, here.exact.take()) {
             self.ends.insert(n, e);
         }
-        self.futures.push(sum.finish());
+        self.futures.push(sum.finish(model, reqs));
         let i = self.futures.len() as u32 - 1;
         if let Some(n) = start {
             self.nodes[n as usize].future = i + 1;
@@ -520,7 +539,22 @@ impl Summary {
         }
     }
 
-    fn finish(self) -> LoneFuture {
+    fn finish(self, model: &Model, reqs: &[Req]) -> LoneFuture {
+        let limit = smallest_excess_limit(reqs);
+        let default = model.actuator.default;
+        let (mut lead, mut later, mut run, mut led) = (0, 0, 0, false);
+        for &open in &self.opens {
+            if f64::from(open) - default > limit {
+                run += 1;
+                if led {
+                    later = run.max(later);
+                } else {
+                    lead = run;
+                }
+            } else {
+                (run, led) = (0, true);
+            }
+        }
         let mut suffix_peak = self.opens.clone();
         for k in (1..suffix_peak.len()).rev() {
             suffix_peak[k - 1] = suffix_peak[k - 1].max(suffix_peak[k]);
@@ -532,6 +566,7 @@ impl Summary {
             suffix_peak,
             safe_at: self.safe_at,
             last_mode: self.last_mode,
+            runs: (lead, later),
         }
     }
 }
@@ -704,6 +739,7 @@ mod tests {
             suffix_peak: Vec::new(),
             safe_at: None,
             last_mode: 0,
+            runs: (0, 0),
         };
         let t = |excess, released| Timers { excess, released };
         let none = [false; 3];
