@@ -491,72 +491,115 @@ pub fn replay_check(
     second_step: Option<u32>,
     reqs: &[Req],
 ) -> Vec<Option<Violation>> {
-    let model = vehicle.ctl.model();
-    let period = model.period;
-    let mut faulty = System::new(vehicle);
-    let mut nominal = System::new(vehicle);
-    let mut excess = vec![0u32; reqs.len()];
-    let mut released = 0u32;
-    let mut out: Vec<Option<Violation>> = vec![None; reqs.len()];
-    for (k, &p) in pedal.iter().enumerate() {
-        let now = Time(period.0 * k as u64);
-        for (n, i) in inj.iter().enumerate() {
-            let at = match (n, second_step) {
-                (0, _) | (_, None) => inject_step,
-                (_, Some(s)) => s,
-            };
-            if k == at as usize {
-                faulty.inject(*i, now);
-            }
+    let split = pedal.len().min(inject_step as usize);
+    Prefix::drive(vehicle, &pedal[..split]).replay(
+        vehicle,
+        inj,
+        pedal,
+        inject_step,
+        second_step,
+        reqs,
+    )
+}
+
+/// The vehicle driven fault-free from key on up to an injection: until then the faulty
+/// vehicle and its fault-free twin are one and the same, so it is stepped once for both.
+#[derive(Clone)]
+pub struct Prefix<'v> {
+    sys: System<'v>,
+    /// Steps at the end of the prefix with the pedal released.
+    released: u32,
+}
+
+impl<'v> Prefix<'v> {
+    /// Steps the vehicle from key on through `pedal`, exactly as [`replay_check`] would.
+    pub fn drive(vehicle: &'v Vehicle, pedal: &[f64]) -> Self {
+        let model = vehicle.ctl.model();
+        let mut sys = System::new(vehicle);
+        let mut released = 0u32;
+        for (k, &p) in pedal.iter().enumerate() {
+            period_step(&mut sys, model, p, Time(model.period.0 * k as u64));
+            released = if p == 0.0 { released + 1 } else { 0 };
         }
-        period_step(&mut faulty, model, p, now);
-        period_step(&mut nominal, model, p, now);
-        released = if p == 0.0 { released + 1 } else { 0 };
-        if (k as u32) < inject_step {
-            continue;
-        }
-        let (open, open_n) = (faulty.opening(), nominal.opening());
-        let at = Time(period.0 * (k as u64 + 1));
-        for (ri, r) in reqs.iter().enumerate() {
-            if out[ri].is_some() {
-                continue;
-            }
-            let hit = match *r {
-                Req::Excess { limit, steps } => {
-                    let base = open_n.max(model.actuator.default);
-                    excess[ri] = if open - base > limit {
-                        excess[ri] + 1
-                    } else {
-                        0
-                    };
-                    (excess[ri] > steps).then_some(base + limit)
-                }
-                Req::Never {
-                    above,
-                    unless_driver,
-                } => (unless_driver.is_none_or(|y| p <= y) && open > above && open_n <= above)
-                    .then_some(above),
-                Req::Idle { idle, steps } => {
-                    (released >= steps && open > idle && open_n <= idle).then_some(idle)
-                }
-            };
-            if let Some(bound) = hit {
-                out[ri] = Some(Violation {
-                    requirement: ri,
-                    second_step,
-                    pedal: pedal[..=k].to_vec(),
-                    inject_step,
-                    at,
-                    opening: open,
-                    bound,
-                });
-            }
-        }
-        if out.iter().all(Option::is_some) {
-            break;
-        }
+        Prefix { sys, released }
     }
-    out
+
+    /// Replays the rest of `pedal` (from step `inject_step`, the prefix's length) with the
+    /// faults injected, beside the fault-free vehicle, and returns, per requirement, its
+    /// first violation on the path.
+    pub fn replay(
+        &self,
+        vehicle: &Vehicle,
+        inj: &[Injection],
+        pedal: &[f64],
+        inject_step: u32,
+        second_step: Option<u32>,
+        reqs: &[Req],
+    ) -> Vec<Option<Violation>> {
+        let model = vehicle.ctl.model();
+        let period = model.period;
+        let mut faulty = self.sys.clone();
+        let mut nominal = self.sys.clone();
+        let mut excess = vec![0u32; reqs.len()];
+        let mut released = self.released;
+        let mut out: Vec<Option<Violation>> = vec![None; reqs.len()];
+        for (k, &p) in pedal.iter().enumerate().skip(inject_step as usize) {
+            let now = Time(period.0 * k as u64);
+            for (n, i) in inj.iter().enumerate() {
+                let at = match (n, second_step) {
+                    (0, _) | (_, None) => inject_step,
+                    (_, Some(s)) => s,
+                };
+                if k == at as usize {
+                    faulty.inject(*i, now);
+                }
+            }
+            period_step(&mut faulty, model, p, now);
+            period_step(&mut nominal, model, p, now);
+            released = if p == 0.0 { released + 1 } else { 0 };
+            let (open, open_n) = (faulty.opening(), nominal.opening());
+            let at = Time(period.0 * (k as u64 + 1));
+            for (ri, r) in reqs.iter().enumerate() {
+                if out[ri].is_some() {
+                    continue;
+                }
+                let hit = match *r {
+                    Req::Excess { limit, steps } => {
+                        let base = open_n.max(model.actuator.default);
+                        excess[ri] = if open - base > limit {
+                            excess[ri] + 1
+                        } else {
+                            0
+                        };
+                        (excess[ri] > steps).then_some(base + limit)
+                    }
+                    Req::Never {
+                        above,
+                        unless_driver,
+                    } => (unless_driver.is_none_or(|y| p <= y) && open > above && open_n <= above)
+                        .then_some(above),
+                    Req::Idle { idle, steps } => {
+                        (released >= steps && open > idle && open_n <= idle).then_some(idle)
+                    }
+                };
+                if let Some(bound) = hit {
+                    out[ri] = Some(Violation {
+                        requirement: ri,
+                        second_step,
+                        pedal: pedal[..=k].to_vec(),
+                        inject_step,
+                        at,
+                        opening: open,
+                        bound,
+                    });
+                }
+            }
+            if out.iter().all(Option::is_some) {
+                break;
+            }
+        }
+        out
+    }
 }
 
 /// Directed probes beside the breadth-first search: from chosen injection instants, the driver
@@ -582,6 +625,7 @@ fn probe(
             return;
         }
         let prefix = pedal_path(pre, o, &g);
+        let start = Prefix::drive(vehicle, &prefix);
         let here = g[usize::from(pre.nodes[o as usize].pedal)];
         for release in [false, true] {
             let mut path = prefix.clone();
@@ -594,7 +638,8 @@ fn probe(
                 path.push(p);
             }
             let inject_step = prefix.len() as u32;
-            for (ri, v) in replay_check(vehicle, inj, &path, inject_step, None, reqs)
+            for (ri, v) in start
+                .replay(vehicle, inj, &path, inject_step, None, reqs)
                 .into_iter()
                 .enumerate()
             {
