@@ -983,6 +983,7 @@ pub fn search_fault<'v>(
             }
             let here = *fg.hot(node.f);
             actions(cfg, fg.pedal[fi], g.len(), &mut acts);
+            fg.expand(node.f, &acts);
             let mut any_new = false;
             for (ai, &a) in acts.iter().enumerate() {
                 for inject_b in [false, true] {
