@@ -12,6 +12,7 @@ pub mod diag;
 pub mod diff;
 pub mod faults;
 pub mod fmt;
+pub mod hint;
 pub mod lang;
 pub mod model;
 pub mod plant;

@@ -146,6 +146,13 @@ impl Clone for State {
 }
 
 impl State {
+    /// Asks the processor to fetch the state's buffers ahead of a step (a hint only).
+    pub fn prefetch(&self) {
+        crate::hint::prefetch_slice(&self.volts);
+        crate::hint::prefetch_slice(&self.faults);
+        crate::hint::prefetch_slice(&self.dwell);
+    }
+
     /// Key on: filters settled on the first sample, no fault pending or set, the start mode,
     /// every timer at zero, the target at the actuator default (where the springs hold the
     /// plate), the integrator empty.

@@ -272,16 +272,31 @@ impl<'a> Faulty<'a> {
     /// Asks the processor to fetch node `f`'s record (a hint only).
     #[inline]
     pub fn prefetch(&self, f: u32) {
-        #[cfg(target_arch = "x86_64")]
-        {
-            let p = self.recs.as_ptr().wrapping_add(f as usize).cast::<i8>();
-            // SAFETY: a prefetch is a hint that never faults, whatever the address.
-            unsafe {
-                std::arch::x86_64::_mm_prefetch(p, std::arch::x86_64::_MM_HINT_T0);
-            }
+        crate::hint::prefetch(self.recs.as_ptr().wrapping_add(f as usize));
+    }
+
+    /// Whether some successor of node `f` has not been stepped yet.
+    fn unexpanded(&self, f: u32) -> bool {
+        let row = &self.succ[f as usize * self.stride..(f as usize + 1) * self.stride];
+        row.contains(&UNKNOWN)
+    }
+
+    /// Asks the processor to fetch the place of node `f`'s controller state, if it is still
+    /// to be stepped (a hint only; see [`Faulty::prefetch_state`]).
+    pub fn prefetch_state_place(&self, f: u32) {
+        let s = self.slot[f as usize];
+        if s != RELEASED && self.unexpanded(f) {
+            crate::hint::prefetch(self.states.as_ptr().wrapping_add(s as usize));
         }
-        #[cfg(not(target_arch = "x86_64"))]
-        let _ = f;
+    }
+
+    /// Asks the processor to fetch node `f`'s controller state, if it is still to be stepped
+    /// (a hint only; its place should have been asked for a little earlier).
+    pub fn prefetch_state(&self, f: u32) {
+        let s = self.slot[f as usize];
+        if s != RELEASED && self.unexpanded(f) {
+            self.states[s as usize].prefetch();
+        }
     }
 
     /// The lone future recorded for node `f` (the search's index), if any.

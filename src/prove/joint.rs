@@ -158,16 +158,7 @@ impl DigestIndex {
     /// never faults and changes nothing).
     pub fn prefetch(&self, d: u128) {
         let i = start(d, self.slots.len() - 1);
-        #[cfg(target_arch = "x86_64")]
-        {
-            let p = self.slots.as_ptr().wrapping_add(i).cast::<i8>();
-            // SAFETY: a prefetch is a hint that never faults, whatever the address.
-            unsafe {
-                std::arch::x86_64::_mm_prefetch(p, std::arch::x86_64::_MM_HINT_T0);
-            }
-        }
-        #[cfg(not(target_arch = "x86_64"))]
-        let _ = i;
+        crate::hint::prefetch(self.slots.as_ptr().wrapping_add(i));
     }
 
     /// Records digest `d` as node `n` (`d` not recorded yet, `n < u32::MAX`).

@@ -972,6 +972,13 @@ pub fn search_fault<'v>(
                 for (_, f2) in fg.known(ahead.f) {
                     fg.prefetch(f2);
                 }
+                fg.prefetch_state(ahead.f);
+            }
+            // Further ahead, where a state yet to be stepped keeps its buffers.
+            if let Some(ahead) = frontier.get(k + 2 * LOOKAHEAD)
+                && ahead.f != node.f
+            {
+                fg.prefetch_state_place(ahead.f);
             }
             let fi = node.f as usize;
             if since >= horizon {
