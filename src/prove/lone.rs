@@ -17,7 +17,7 @@
 
 use super::Requirement as Req;
 use super::faulty::Faulty;
-use super::joint::DigestIndex;
+use super::joint::{DigestIndex, JointSet};
 use super::search::{FaultResult, PreSet, Timers, digest};
 use crate::controller::{Outputs, Sample, State};
 use crate::model::Model;
@@ -87,7 +87,7 @@ impl LoneFuture {
     /// beside twin `t`, into the figures of the matrix, as if the search had gone on. The
     /// excess is worst when the twin closes fastest, so the twin is walked along the
     /// fault-free set with the driver easing off each step, for as long as the future's
-    /// openings can still raise a figure.
+    /// openings can still raise a figure, and only if `walk()` says so (it is asked last).
     #[allow(clippy::too_many_arguments)]
     pub fn fold_figures(
         &self,
@@ -98,6 +98,7 @@ impl LoneFuture {
         t: u32,
         timers: Timers,
         since: u32,
+        mut walk: impl FnMut() -> bool,
     ) {
         let period = model.period;
         let d = |n: u32| Time(period.0 * u64::from(n));
@@ -127,7 +128,8 @@ impl LoneFuture {
         let longest = (u32::from(timers.excess) + lead).max(later);
         if self.suffix_peak.first().is_none_or(|&p| {
             f64::from(p) - default <= res.worst_excess && d(longest) <= res.worst_excess_duration
-        }) {
+        }) || !walk()
+        {
             return;
         }
         let mut tw = t;
@@ -254,6 +256,9 @@ pub(super) struct LoneWalks {
     /// The quantum of the cells' continuous parts.
     resolution: f64,
     pub futures: Vec<LoneFuture>,
+    /// Per future and twin whose walk has been folded, the longest excess run it started
+    /// with (see [`LoneWalks::fold_figures`]).
+    folded: JointSet,
     scratch: (Sample, Outputs),
     positions: Vec<f64>,
 }
@@ -280,9 +285,39 @@ impl LoneWalks {
             ends: HashMap::new(),
             max,
             futures: Vec::new(),
+            folded: JointSet::default(),
             scratch: (sample, Outputs::default()),
             positions: vec![0.0; model.sensors.len()],
         }
+    }
+
+    /// Folds future `li` beside twin `t` into the figures (see [`LoneFuture::fold_figures`]).
+    /// The twin's walk is the same each time it starts from `t`, and a run started no
+    /// longer than before stays no longer at every step, so such a fold changes nothing: the
+    /// walk is taken once per future and twin, unless a longer run comes (exact).
+    #[allow(clippy::too_many_arguments)]
+    pub fn fold_figures(
+        &mut self,
+        li: u32,
+        res: &mut FaultResult,
+        model: &Model,
+        pre: &PreSet<'_>,
+        reqs: &[Req],
+        t: u32,
+        timers: Timers,
+        since: u32,
+    ) {
+        let lone = &self.futures[li as usize];
+        let walk = || {
+            let run = Timers {
+                excess: timers.excess,
+                released: 0,
+            };
+            self.folded
+                .admit((u64::from(li) << 32) | u64::from(t), run)
+                .is_some()
+        };
+        lone.fold_figures(res, model, pre, reqs, t, timers, since, walk);
     }
 
     /// A walk at stored node `n`, standing for its first visitor.
@@ -676,6 +711,7 @@ mod tests {
         let tolerance = cfg.resolution / 100.0;
         let mut worst = 0f64;
         let mut shared = 0;
+        let mut ids = Vec::new();
         for &f in &lone {
             // The exact future.
             let mut st = fg.state(f).expect("kept").clone();
@@ -703,6 +739,7 @@ mod tests {
             let before = walks.nodes.len();
             let i = walks.future(&mut fg, &model, &reqs, f, horizon);
             shared += usize::from(walks.nodes.len() - before < horizon as usize / 2);
+            ids.push(i);
             let walked = &walks.futures[i as usize];
             assert_eq!(walked.opens.len(), exact.len(), "node {f}");
             for (w, e) in walked.opens.iter().zip(&exact) {
@@ -717,6 +754,45 @@ mod tests {
             shared * 10 > lone.len() * 9,
             "{shared} of {} futures shared",
             lone.len()
+        );
+        // Folding each future into fresh figures beside twins, in a seeded order with repeats
+        // and excess runs both longer and shorter than before: skipping the walks taken
+        // already leaves the figures as walking each one does (the reference).
+        let twins: Vec<u32> = (0..pre.nodes.len() as u32).step_by(97).collect();
+        let mut x = 0x9e37_79b9_7f4a_7c15u64;
+        let (mut folds, mut differ) = (0usize, 0usize);
+        for &li in ids.iter().step_by(5) {
+            let (mut skipping, mut walking) = (FaultResult::default(), FaultResult::default());
+            for _ in 0..30 {
+                crate::testing::xorshift(&mut x);
+                let t = twins[(x % 8 % twins.len() as u64) as usize * twins.len() / 8];
+                let timers = Timers {
+                    excess: ((x >> 40) % 45) as u16,
+                    released: ((x >> 50) % 300) as u16,
+                };
+                let since = ((x >> 30) % 200) as u32;
+                walks.fold_figures(li, &mut skipping, &model, &pre, &reqs, t, timers, since);
+                walks.futures[li as usize].fold_figures(
+                    &mut walking,
+                    &model,
+                    &pre,
+                    &reqs,
+                    t,
+                    timers,
+                    since,
+                    || true,
+                );
+                folds += 1;
+            }
+            differ += usize::from(walking.worst_excess > 0.0);
+            assert_eq!(skipping, walking, "future {li}");
+        }
+        assert!(differ > 0, "no future raised the excess");
+        // Most folds were skipped (or ended early) rather than walked.
+        assert!(
+            walks.folded.len() * 2 < folds,
+            "{} walks kept",
+            walks.folded.len()
         );
     }
 

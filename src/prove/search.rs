@@ -1132,10 +1132,10 @@ pub fn search_fault<'v>(
                             let lone = &walks.futures[li as usize];
                             let harmless = lone.harmless(model, reqs, &found, timers);
                             if harmless {
-                                lone.fold_figures(
-                                    &mut res, model, pre, reqs, t2, timers, since_next,
-                                );
                                 end_modes[lone.last_mode] = true;
+                                walks.fold_figures(
+                                    li, &mut res, model, pre, reqs, t2, timers, since_next,
+                                );
                             }
                             harmless
                         };
