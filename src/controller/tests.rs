@@ -974,3 +974,53 @@ fn suspicion_by_bit_mask_agrees_with_the_fault_lists() {
     // The walk exercised suspicion, not only the all-clear.
     assert!(suspected > 100, "{suspected}");
 }
+
+#[test]
+fn rounding_to_integers_agrees_with_the_standard_library() {
+    // The reference is `f64::round` followed by the saturating cast (the standard library's
+    // own semantics): halves, the values beside them, the ends of exactness and of the
+    // type, infinities, NaN, and a seeded sweep of magnitudes.
+    let mut cases = vec![
+        0.0,
+        -0.0,
+        0.5,
+        -0.5,
+        1.5,
+        -1.5,
+        2.5,
+        -2.5,
+        0.49999999999999994,
+        -0.49999999999999994,
+        4503599627370495.5,
+        -4503599627370495.5,
+        4503599627370496.0,
+        9007199254740993.0,
+        9.223372036854775e18,
+        9.223372036854776e18,
+        -9.223372036854776e18,
+        -9.223372036854778e18,
+        1e300,
+        -1e300,
+        f64::MIN_POSITIVE,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::NAN,
+    ];
+    let mut x = 0x2545_f491_4f6c_dd1du64;
+    for _ in 0..200_000 {
+        crate::testing::xorshift(&mut x);
+        let mag = 10f64.powi((x % 40) as i32 - 20);
+        let v = ((x >> 8) as f64 / (1u64 << 56) as f64 - 0.5) * mag;
+        cases.push(v);
+        // Exactly on a half, and one step either side of it.
+        let h = (v.trunc()) + 0.5;
+        cases.extend([
+            h,
+            f64::from_bits(h.to_bits() + 1),
+            f64::from_bits(h.to_bits() - 1),
+        ]);
+    }
+    for v in cases {
+        assert_eq!(super::round_i64(v), v.round() as i64, "{v:e}");
+    }
+}

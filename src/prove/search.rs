@@ -205,7 +205,7 @@ pub fn period_step(sys: &mut System<'_>, model: &Model, pedal: f64, now: Time) {
 
 pub(super) fn quantise(x: f64, q: f64) -> i32 {
     if x.is_finite() {
-        (x / q).round() as i32
+        crate::controller::round_i64(x / q).clamp(i64::from(i32::MIN), i64::from(i32::MAX)) as i32
     } else {
         i32::MIN
     }
