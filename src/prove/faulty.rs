@@ -417,29 +417,18 @@ impl<'a> Faulty<'a> {
     /// records the node as the successor in `p.slot` (unless that is `usize::MAX`).
     fn settle(&mut self, p: Pending) -> u32 {
         let model = self.vehicle.ctl.model();
-        let Pending {
-            slot: succ_slot,
-            st,
-            plate,
-            faults,
-            step,
-            phase,
-            pedal,
-            second_in,
-            key: k,
-            driver_in,
-        } = p;
-        if let Some(i) = self.index.get(k) {
+        let (st, plate, faults) = (p.st, p.plate, p.faults);
+        if let Some(i) = self.index.get(p.key) {
             self.spares.push(st);
-            return self.record(succ_slot, i);
+            return self.record(p.slot, i);
         }
         if self.slot.len() >= self.max {
             self.truncated = true;
             self.spares.push(st);
-            return self.record(succ_slot, DROPPED);
+            return self.record(p.slot, DROPPED);
         }
         let i = self.slot.len() as u32;
-        self.index.insert(k, i);
+        self.index.insert(p.key, i);
         push_monitor_words(model.faults.len(), |f| st.fault_set(f), &mut self.masks);
         let flag = |b: bool, f: u8| if b { f } else { 0 };
         self.recs.push(Rec {
@@ -448,8 +437,8 @@ impl<'a> Faulty<'a> {
                 mask0: self.masks[i as usize * self.words],
                 faults,
                 mode: st.mode() as u16,
-                flags: flag(second_in, Hot::SECOND_IN)
-                    | flag(driver_in, Hot::DRIVER_IN)
+                flags: flag(p.second_in, Hot::SECOND_IN)
+                    | flag(p.driver_in, Hot::DRIVER_IN)
                     | flag(model.modes[st.mode()].is_safe(), Hot::SAFE)
                     | flag(self.lists.stuck[faults as usize], Hot::STUCK),
                 inline: 0,
@@ -471,11 +460,11 @@ impl<'a> Faulty<'a> {
             }
         }
         self.plate.push(plate);
-        self.step.push(step);
-        self.phase.push(phase);
-        self.pedal.push(pedal);
+        self.step.push(p.step);
+        self.phase.push(p.phase);
+        self.pedal.push(p.pedal);
         self.succ.extend(std::iter::repeat_n(UNKNOWN, self.stride));
-        self.record(succ_slot, i)
+        self.record(p.slot, i)
     }
 
     /// Records node `i` in successor slot `slot` (none for `usize::MAX`), and returns it.
