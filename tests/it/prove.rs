@@ -26,8 +26,13 @@ fn focused(only: &str) -> Config {
     }
 }
 
+/// A fresh folder of this process's own: tests run in parallel, and two of them may ask for
+/// the same name (one removing it while the other writes into it), so each call numbers its
+/// folder.
 fn temp_dir(name: &str) -> std::path::PathBuf {
-    let d = std::env::temp_dir().join(format!("limpet-it-{}-{name}", std::process::id()));
+    static CALLS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+    let n = CALLS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let d = std::env::temp_dir().join(format!("limpet-it-{}-{n}-{name}", std::process::id()));
     let _ = std::fs::remove_dir_all(&d);
     std::fs::create_dir_all(&d).expect("temp dir");
     d
