@@ -275,27 +275,27 @@ impl<'a> Faulty<'a> {
         crate::hint::prefetch(self.recs.as_ptr().wrapping_add(f as usize));
     }
 
-    /// Whether some successor of node `f` has not been stepped yet.
-    fn unexpanded(&self, f: u32) -> bool {
+    /// The place of node `f`'s controller state, if it is kept and some successor of `f` has
+    /// not been stepped yet.
+    fn to_step(&self, f: u32) -> Option<usize> {
+        let s = self.slot[f as usize];
         let row = &self.succ[f as usize * self.stride..(f as usize + 1) * self.stride];
-        row.contains(&UNKNOWN)
+        (s != RELEASED && row.contains(&UNKNOWN)).then_some(s as usize)
     }
 
     /// Asks the processor to fetch the place of node `f`'s controller state, if it is still
     /// to be stepped (a hint only; see [`Faulty::prefetch_state`]).
     pub fn prefetch_state_place(&self, f: u32) {
-        let s = self.slot[f as usize];
-        if s != RELEASED && self.unexpanded(f) {
-            crate::hint::prefetch(self.states.as_ptr().wrapping_add(s as usize));
+        if let Some(s) = self.to_step(f) {
+            crate::hint::prefetch(self.states.as_ptr().wrapping_add(s));
         }
     }
 
     /// Asks the processor to fetch node `f`'s controller state, if it is still to be stepped
     /// (a hint only; its place should have been asked for a little earlier).
     pub fn prefetch_state(&self, f: u32) {
-        let s = self.slot[f as usize];
-        if s != RELEASED && self.unexpanded(f) {
-            self.states[s as usize].prefetch();
+        if let Some(s) = self.to_step(f) {
+            self.states[s].prefetch();
         }
     }
 
@@ -381,9 +381,30 @@ impl<'a> Faulty<'a> {
         pedal: u8,
         second_in: bool,
     ) -> u32 {
-        let (key, driver_in) = self.key(&st, plate, faults, phase, pedal, second_in);
-        self.settle(Pending {
-            slot: usize::MAX,
+        let p = self.keyed(usize::MAX, st, plate, faults, step, phase, pedal, second_in);
+        self.settle(p)
+    }
+
+    /// A faulty state with its node's key (the vehicle's cell, the pedal and a pair's
+    /// progress) and whether the driver's sensor is in its cone, ready to be looked up as
+    /// the successor in `slot` (`usize::MAX` for a root).
+    #[allow(clippy::too_many_arguments)]
+    fn keyed(
+        &mut self,
+        slot: usize,
+        st: State,
+        plate: PlantState,
+        faults: u32,
+        step: u32,
+        phase: u32,
+        pedal: u8,
+        second_in: bool,
+    ) -> Pending {
+        let driver_in = self.encode_cell(&st, plate, faults, phase, self.resolution);
+        self.buf.push(pedal);
+        self.buf.push(u8::from(second_in));
+        Pending {
+            slot,
             st,
             plate,
             faults,
@@ -391,26 +412,9 @@ impl<'a> Faulty<'a> {
             phase,
             pedal,
             second_in,
-            key,
+            key: digest(&self.buf),
             driver_in,
-        })
-    }
-
-    /// A node's key: the vehicle's cell, the pedal and a pair's progress; and whether the
-    /// driver's sensor is in its cone.
-    fn key(
-        &mut self,
-        st: &State,
-        plate: PlantState,
-        faults: u32,
-        phase: u32,
-        pedal: u8,
-        second_in: bool,
-    ) -> (u128, bool) {
-        let driver_in = self.encode_cell(st, plate, faults, phase, self.resolution);
-        self.buf.push(pedal);
-        self.buf.push(u8::from(second_in));
-        (digest(&self.buf), driver_in)
+        }
     }
 
     /// Looks a stepped state up by its key, stores it as a new node if it is none yet, and
@@ -590,19 +594,7 @@ impl<'a> Faulty<'a> {
         let step = self.step[fi] + 1;
         let phase = (self.phase[fi] + 1) % self.cycle;
         let second_in = self.recs[fi].hot.second_in() || inject_b;
-        let (key, driver_in) = self.key(&st, plate, faults, phase, a, second_in);
-        Some(Pending {
-            slot,
-            st,
-            plate,
-            faults,
-            step,
-            phase,
-            pedal: a,
-            second_in,
-            key,
-            driver_in,
-        })
+        Some(self.keyed(slot, st, plate, faults, step, phase, a, second_in))
     }
 }
 

@@ -491,22 +491,21 @@ pub fn replay_check(
     second_step: Option<u32>,
     reqs: &[Req],
 ) -> Vec<Option<Violation>> {
-    let split = pedal.len().min(inject_step as usize);
-    Prefix::drive(vehicle, &pedal[..split]).replay(
-        vehicle,
-        inj,
-        pedal,
-        inject_step,
-        second_step,
-        reqs,
-    )
+    if inject_step as usize > pedal.len() {
+        // The fault would arrive after the path ends: nothing to check.
+        return vec![None; reqs.len()];
+    }
+    Prefix::drive(vehicle, &pedal[..inject_step as usize]).replay(inj, pedal, second_step, reqs)
 }
 
 /// The vehicle driven fault-free from key on up to an injection: until then the faulty
 /// vehicle and its fault-free twin are one and the same, so it is stepped once for both.
 #[derive(Clone)]
 pub struct Prefix<'v> {
+    vehicle: &'v Vehicle,
     sys: System<'v>,
+    /// Steps driven: the step the faults are injected at.
+    steps: u32,
     /// Steps at the end of the prefix with the pedal released.
     released: u32,
 }
@@ -521,22 +520,26 @@ impl<'v> Prefix<'v> {
             period_step(&mut sys, model, p, Time(model.period.0 * k as u64));
             released = if p == 0.0 { released + 1 } else { 0 };
         }
-        Prefix { sys, released }
+        Prefix {
+            vehicle,
+            sys,
+            steps: pedal.len() as u32,
+            released,
+        }
     }
 
-    /// Replays the rest of `pedal` (from step `inject_step`, the prefix's length) with the
-    /// faults injected, beside the fault-free vehicle, and returns, per requirement, its
-    /// first violation on the path.
+    /// Replays the rest of `pedal` (the prefix is its start) with the faults injected at the
+    /// prefix's end (a pair's second at `second_step`), beside the fault-free vehicle, and
+    /// returns, per requirement, its first violation on the path.
     pub fn replay(
         &self,
-        vehicle: &Vehicle,
         inj: &[Injection],
         pedal: &[f64],
-        inject_step: u32,
         second_step: Option<u32>,
         reqs: &[Req],
     ) -> Vec<Option<Violation>> {
-        let model = vehicle.ctl.model();
+        let model = self.vehicle.ctl.model();
+        let inject_step = self.steps;
         let period = model.period;
         let mut faulty = self.sys.clone();
         let mut nominal = self.sys.clone();
@@ -637,12 +640,7 @@ fn probe(
                 }
                 path.push(p);
             }
-            let inject_step = prefix.len() as u32;
-            for (ri, v) in start
-                .replay(vehicle, inj, &path, inject_step, None, reqs)
-                .into_iter()
-                .enumerate()
-            {
+            for (ri, v) in start.replay(inj, &path, None, reqs).into_iter().enumerate() {
                 if let Some(v) = v
                     && !found[ri]
                 {
