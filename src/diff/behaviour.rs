@@ -399,11 +399,7 @@ fn row_cells(
         ("detected by".to_string(), list(&r.monitors, fault), None),
         (
             "worst detection".to_string(),
-            if r.monitors.is_empty() {
-                "-".into()
-            } else {
-                ms(r.worst_detection)
-            },
+            crate::prove::report::detection(r),
             None,
         ),
         ("ends in".to_string(), list(&r.end_modes, mode), None),

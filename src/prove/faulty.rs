@@ -309,8 +309,8 @@ impl<'a> Faulty<'a> {
         self.recs[f as usize].lone = i + 1;
     }
 
-    /// Records that node `f` was reached beside a twin whose part of the joint key (with the
-    /// detection bit) is `part`, with timers `t`: as [`JointSet::admit`] does for the key
+    /// Records that node `f` was reached beside a twin whose part of the joint key is `part`,
+    /// with timers `t`: as [`JointSet::admit`] does for the key
     /// `(f, part)`, whose semantics it shares, in the node's own record while it has room.
     pub fn admit(&mut self, f: u32, part: u32, t: Timers) -> Option<Timers> {
         admit(
@@ -489,6 +489,13 @@ impl<'a> Faulty<'a> {
             .enumerate()
             .filter(|&(_, &s)| s != UNKNOWN && s != DROPPED)
             .map(|(ai, &s)| (ai, s))
+    }
+
+    /// Pushes node `f`'s known successors, under every action, with a pair's second fault
+    /// arriving and without.
+    pub fn successors(&self, f: u32, out: &mut Vec<u32>) {
+        let row = &self.succ[f as usize * self.stride..(f as usize + 1) * self.stride];
+        out.extend(row.iter().filter(|&&s| s != UNKNOWN && s != DROPPED));
     }
 
     fn slot_of(&self, f: u32, ai: usize, inject_b: bool) -> usize {

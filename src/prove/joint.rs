@@ -1,5 +1,5 @@
 //! The search's two large tables, each open-addressed with linear probing: a joint visited
-//! set (packed 64-bit keys of faulty node, twin and detection, with the requirement timers each
+//! set (packed 64-bit keys of faulty node and twin, with the requirement timers each
 //! was reached with), which holds the joint entries a faulty node's own record has no room
 //! for (see `faulty::Faulty::admit`), and the faulty graph's index (128-bit state digests to
 //! node numbers).

@@ -2,6 +2,7 @@
 //! instants, the reaction matrix, and counterexamples written as scenario scripts that replay.
 
 pub mod cone;
+pub mod detect;
 pub mod faulty;
 pub mod joint;
 mod lone;

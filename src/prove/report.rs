@@ -34,6 +34,19 @@ fn mode_names(m: &Model, ms: &[usize]) -> String {
     }
 }
 
+/// The worst-detection cell: `-` when no monitor ever sees the fault, `latent` when some
+/// driving keeps it unseen for the whole horizon (so a detection may come as late as the
+/// driver likes), else the latest first detection.
+pub fn detection(r: &super::search::FaultResult) -> String {
+    if r.monitors.is_empty() {
+        "-".into()
+    } else if r.undetected_branch {
+        "latent".into()
+    } else {
+        ms(r.worst_detection)
+    }
+}
+
 /// `ok`, `VIOLATED` or `?` (bound hit) per requirement.
 pub fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
     (0..p.requirements.len())
@@ -56,11 +69,7 @@ fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
             "".into()
         },
         names(m, &r.monitors),
-        if r.monitors.is_empty() {
-            "-".into()
-        } else {
-            ms(r.worst_detection)
-        },
+        detection(r),
         mode_names(m, &r.end_modes),
         ms(r.to_safe),
         format!(

@@ -152,6 +152,19 @@ impl PreSet<'_> {
         self.any_mask.then(|| &self.masks[i..i + self.words])
     }
 
+    /// The monitors set in some fault-free node, as 64-bit words.
+    pub fn monitors_anywhere(&self) -> Vec<u64> {
+        let mut any = vec![0u64; self.words];
+        if self.any_mask {
+            for node in self.masks.chunks_exact(self.words) {
+                for (a, m) in any.iter_mut().zip(node) {
+                    *a |= m;
+                }
+            }
+        }
+        any
+    }
+
     /// The successor of node `t` under the `ai`-th action.
     pub fn step(&self, t: u32, ai: usize) -> u32 {
         self.succ[t as usize * self.stride + ai]
@@ -423,9 +436,11 @@ pub struct FaultResult {
     pub truncated: bool,
     /// Monitors set in some explored faulty state (that are not set in its twin).
     pub monitors: Vec<usize>,
-    /// Longest time from injection to the first monitor setting, over the explored branches.
+    /// Longest time from injection to the first monitor setting, over the walks of the
+    /// explored faulty graph (capped at the horizon; see [`super::detect`]).
     pub worst_detection: Option<Time>,
-    /// Whether some explored branch was never detected within the horizon.
+    /// Some walk of the explored faulty graph stays undetected for the whole horizon: the
+    /// fault can stay latent.
     pub undetected_branch: bool,
     /// Modes the faulty vehicle ends in (at the horizon or at a repeated state).
     pub end_modes: Vec<usize>,
@@ -775,7 +790,6 @@ struct Joint {
     f: u32,
     t: u32,
     timers: Timers,
-    detected: bool,
     id: u32,
 }
 
@@ -886,8 +900,7 @@ pub fn search_fault<'v>(
         }
     };
     // The joint key beside the faulty node (which holds it, see [`Faulty::admit`]).
-    let part =
-        |t: u32, detected: bool| -> u32 { ((twin_part(t) << 1) | u64::from(detected)) as u32 };
+    let part = |t: u32| -> u32 { twin_part(t) as u32 };
 
     // Roots: the fault injected into every fault-free state, i.e. at every injection instant
     // the fault-free set tells apart at the resolution.
@@ -925,12 +938,11 @@ pub fn search_fault<'v>(
             excess: 0,
             released: o.released,
         };
-        if fg.admit(f, part(oi as u32, false), timers).is_some() {
+        if fg.admit(f, part(oi as u32), timers).is_some() {
             frontier.push(Joint {
                 f,
                 t: oi as u32,
                 timers,
-                detected: false,
                 id: arena.len() as u32,
             });
             arena.push((u32::MAX, o.pedal, oi as u32));
@@ -981,9 +993,6 @@ pub fn search_fault<'v>(
             let fi = node.f as usize;
             if since >= horizon {
                 end_modes[usize::from(fg.hot(node.f).mode)] = true;
-                if !node.detected {
-                    res.undetected_branch = true;
-                }
                 continue;
             }
             let here = *fg.hot(node.f);
@@ -1012,21 +1021,12 @@ pub fn search_fault<'v>(
                     };
                     let mut excess_now = false;
                     let since_next = since + 1;
-                    // Monitors and detection: set in the faulty vehicle, not in its twin.
-                    let mut detected = node.detected;
+                    // Monitors set in the faulty vehicle, not in its twin (the detection time is
+                    // taken from the faulty graph after the search).
                     let tw_mask = pre.mask(t2);
                     for (w, seen) in monitor_seen.iter_mut().enumerate() {
                         let m = if w == 0 { there.mask0 } else { fg.mask(f2)[w] };
-                        let new = m & !tw_mask.map_or(0, |n| n[w]);
-                        if new != 0 {
-                            *seen |= new;
-                            if !detected {
-                                detected = true;
-                                let t = Time(period.0 * u64::from(since_next));
-                                res.worst_detection =
-                                    Some(res.worst_detection.map_or(t, |w| w.max(t)));
-                            }
-                        }
+                        *seen |= m & !tw_mask.map_or(0, |n| n[w]);
                     }
                     if there.safe() && !here.safe() {
                         let t = Time(period.0 * u64::from(since_next));
@@ -1142,7 +1142,7 @@ pub fn search_fault<'v>(
                             continue;
                         }
                     }
-                    let Some(t) = fg.admit(f2, part(t2, detected), timers) else {
+                    let Some(t) = fg.admit(f2, part(t2), timers) else {
                         continue;
                     };
                     if arena.len() >= cfg.max_states.min(MAX_NODES) {
@@ -1154,7 +1154,6 @@ pub fn search_fault<'v>(
                         f: f2,
                         t: t2,
                         timers: t,
-                        detected,
                         id: arena.len() as u32,
                     });
                     arena.push((node.id, a | if inject_b { 0x80 } else { 0 }, u32::MAX));
@@ -1172,6 +1171,18 @@ pub fn search_fault<'v>(
         sort_by_node(&mut frontier, &mut sort_scratch);
         since += 1;
     }
+    // Detection: the longest undetected walks of the faulty graph (see `detect`). A monitor
+    // that some fault-free state sets does not count as detecting the fault.
+    let fault_free = pre.monitors_anywhere();
+    let det = super::detect::longest_undetected(
+        fg.nodes(),
+        0..root_nodes,
+        |u, out| fg.successors(u, out),
+        |u| fg.mask(u).iter().zip(&fault_free).all(|(m, f)| m & !f == 0),
+        horizon,
+    );
+    res.worst_detection = det.worst.map(|s| Time(period.0 * u64::from(s)));
+    res.undetected_branch = det.latent;
     res.states = arena.len();
     res.faulty_states = fg.nodes();
     res.truncated |= fg.truncated;
@@ -1264,7 +1275,6 @@ mod tests {
                         f: (x % span) as u32 + 7,
                         t: 0,
                         timers: Timers::default(),
-                        detected: false,
                         id: i as u32,
                     }
                 })

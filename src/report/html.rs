@@ -226,11 +226,7 @@ impl Page<'_> {
                     String::new()
                 },
                 names(&r.monitors),
-                if r.monitors.is_empty() {
-                    "-".into()
-                } else {
-                    ms(r.worst_detection)
-                },
+                crate::prove::report::detection(r),
                 modes,
                 ms(r.to_safe),
                 format!(

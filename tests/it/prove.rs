@@ -291,3 +291,56 @@ fn a_pair_at_independent_instants_replays() {
     assert_eq!(out.exit, Exit::Finding, "{text}\n{}", out.stdout);
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// The worst detection time, worked by hand. `pedal.a open` reads 0 V at once; the track's
+/// filter is a first-order lag discretised exactly (DESIGN.md), so from the highest reading
+/// (pedal at 100 %, 4.00 V) the filtered volts after n periods are 4.00 * exp(-n T / tau)
+/// (first-order step response, any control textbook). `pedal_a_low` needs them below 0.25 V
+/// on 20 ms / T consecutive steps. Any lower pedal starts lower and crosses sooner, and the
+/// disagreement check needs 40 ms of its own, so the worst branch is the one from full pedal,
+/// and no branch escapes: an open wire is seen whatever the driver does.
+#[test]
+fn worst_detection_time_of_an_open_track_follows_from_the_filter_and_the_debounce() {
+    let m = load("scenarios/van/van_throttle.limp");
+    let cfg = Config {
+        max_states: 5_000_000,
+        ..focused("pedal.a open")
+    };
+    let proof = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+    let r = &proof.rows[0].result;
+    assert!(!r.truncated, "the search must close");
+    let (period, tau) = (5.0, 8.0);
+    // First step with the filtered volts below the threshold, then the debounce's steps.
+    let crossing = ((tau / period) * (4.00f64 / 0.25).ln()).floor() as u64 + 1;
+    let debounce = (20.0f64 / period).ceil() as u64;
+    let want = Time::from_ms((crossing + debounce - 1) * 5);
+    assert_eq!(want, Time::from_ms(40));
+    assert_eq!(r.worst_detection, Some(want));
+    assert!(!r.undetected_branch);
+}
+
+/// A pedal track stuck where the driver holds the pedal reads what it should: no monitor can
+/// see it until the driver moves (common practice, no source: a stuck sensor is a latent
+/// fault for as long as its value stays plausible). The search must say some branch stays
+/// undetected over the whole horizon, whatever it found on the branches that were detected.
+#[test]
+fn a_track_stuck_under_a_held_pedal_is_latent() {
+    let m = load("scenarios/van/van_throttle.limp");
+    // The prover's own grid and horizon (a coarser grid does not close within the bound).
+    let cfg = Config {
+        max_states: 10_000_000,
+        jobs: 1,
+        only: Some("pedal.a stuck".into()),
+        ..Config::default()
+    };
+    let proof = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+    let r = &proof.rows[0].result;
+    assert!(!r.truncated, "the search must close");
+    assert!(!r.monitors.is_empty(), "moving the pedal away is seen");
+    assert!(r.undetected_branch);
+    assert_eq!(
+        limpet::prove::report::detection(r),
+        "latent",
+        "the matrix says so"
+    );
+}
