@@ -11,7 +11,8 @@ use super::Config;
 use super::cone::{Cone, ConeCache};
 use super::joint::{DigestIndex, JointSet, pack, unpack};
 use super::search::{
-    FaultLists, Timers, break_into, digest, encode_plate, grid, monitor_words, push_monitor_words,
+    FaultLists, Timers, Watch, break_into, digest, encode_plate, grid, monitor_words,
+    push_monitor_words,
 };
 use crate::controller::{Outputs, Sample, State};
 use crate::faults::{Injection, TrackFault};
@@ -108,11 +109,11 @@ fn pack_entry(part: u32, t: Timers) -> u64 {
 /// (no further on in either timer), `Some(Some(max))` when it did not (the entry now holds
 /// the larger of each), `None` when `e` is another twin's.
 #[inline]
-fn merge(e: &mut u64, part: u32, t: Timers) -> Option<Option<Timers>> {
+fn merge(e: &mut u64, part: u32, t: Timers, watch: Watch) -> Option<Option<Timers>> {
     if (*e >> 32) as u32 != part {
         return None;
     }
-    let new = unpack(*e as u32).absorb(t);
+    let new = unpack(*e as u32).absorb(t, watch);
     if let Some(n) = new {
         *e = pack_entry(part, n);
     }
@@ -312,7 +313,7 @@ impl<'a> Faulty<'a> {
     /// Records that node `f` was reached beside a twin whose part of the joint key is `part`,
     /// with timers `t`: as [`JointSet::admit`] does for the key
     /// `(f, part)`, whose semantics it shares, in the node's own record while it has room.
-    pub fn admit(&mut self, f: u32, part: u32, t: Timers) -> Option<Timers> {
+    pub fn admit(&mut self, f: u32, part: u32, t: Timers, watch: Watch) -> Option<Timers> {
         admit(
             &mut self.recs,
             &mut self.buckets,
@@ -320,6 +321,7 @@ impl<'a> Faulty<'a> {
             f,
             part,
             t,
+            watch,
         )
     }
 
@@ -628,11 +630,12 @@ fn admit(
     f: u32,
     part: u32,
     t: Timers,
+    watch: Watch,
 ) -> Option<Timers> {
     let rec = &mut recs[f as usize];
     let n = usize::from(rec.hot.inline);
     for e in &mut rec.seen[..n] {
-        if let Some(r) = merge(e, part, t) {
+        if let Some(r) = merge(e, part, t, watch) {
             return r;
         }
     }
@@ -647,7 +650,7 @@ fn admit(
     while b != 0 {
         let bucket = &mut buckets[b as usize - 1];
         for e in &mut bucket.seen[..bucket.len as usize] {
-            if let Some(r) = merge(e, part, t) {
+            if let Some(r) = merge(e, part, t, watch) {
                 return r;
             }
         }
@@ -656,7 +659,7 @@ fn admit(
         chain += 1;
     }
     if rec.hot.flags & Hot::SPILLED != 0 {
-        return spill.admit((u64::from(f) << 32) | u64::from(part), t);
+        return spill.admit((u64::from(f) << 32) | u64::from(part), t, watch);
     }
     if last != 0 {
         let bucket = &mut buckets[last as usize - 1];
@@ -683,7 +686,7 @@ fn admit(
         return Some(t);
     }
     rec.hot.flags |= Hot::SPILLED;
-    spill.admit((u64::from(f) << 32) | u64::from(part), t)
+    spill.admit((u64::from(f) << 32) | u64::from(part), t, watch)
 }
 
 pub fn gcd(a: u32, b: u32) -> u32 {
@@ -828,8 +831,15 @@ mod tests {
                 excess: (x >> 40) as u16 % 50,
                 released: (x >> 50) as u16 % 300,
             };
-            let want = super::super::joint::admit_by_map(&mut m, (f, part), t);
-            assert_eq!(admit(&mut recs, &mut buckets, &mut spill, f, part, t), want);
+            let watch = Watch {
+                excess: !(x >> 8).is_multiple_of(4),
+                released: !(x >> 10).is_multiple_of(4),
+            };
+            let want = super::super::joint::admit_by_map(&mut m, (f, part), t, watch);
+            assert_eq!(
+                admit(&mut recs, &mut buckets, &mut spill, f, part, t, watch),
+                want
+            );
         }
         let spilled = recs.iter().filter(|r| r.hot.flags & Hot::SPILLED != 0);
         let inline_only = recs.iter().filter(|r| r.more == 0 && r.hot.inline > 0);

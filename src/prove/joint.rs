@@ -8,7 +8,7 @@
 //! than the caches misses twice; here a slot holds key and value together and a lookup usually
 //! misses once.
 
-use super::search::Timers;
+use super::search::{Timers, Watch};
 
 /// An empty slot's first word: a slot stores the key's high half plus one, so that a table
 /// of zeros is empty and comes from the allocator already cleared.
@@ -70,7 +70,7 @@ impl JointSet {
     /// them (returned): an over-approximation, on the side of finding violations (each is
     /// confirmed by an exact replay before it is reported). `key`'s high half must be below
     /// `u32::MAX`.
-    pub fn admit(&mut self, key: u64, t: Timers) -> Option<Timers> {
+    pub fn admit(&mut self, key: u64, t: Timers, watch: Watch) -> Option<Timers> {
         debug_assert!(key >> 32 < u64::from(u32::MAX));
         if (self.len + 1) * 2 > self.slots.len() {
             self.grow();
@@ -86,7 +86,7 @@ impl JointSet {
                 return Some(t);
             }
             if s[0] == hi && s[1] == lo {
-                let new = unpack(s[2]).absorb(t)?;
+                let new = unpack(s[2]).absorb(t, watch)?;
                 s[2] = pack(new);
                 return Some(new);
             }
@@ -188,9 +188,15 @@ pub(crate) fn admit_by_map<K: std::hash::Hash + Eq>(
     m: &mut std::collections::HashMap<K, Timers>,
     key: K,
     t: Timers,
+    watch: Watch,
 ) -> Option<Timers> {
     match m.get_mut(&key) {
-        Some(o) if o.excess >= t.excess && o.released >= t.released => None,
+        Some(o)
+            if (o.excess >= t.excess || !watch.excess)
+                && (o.released >= t.released || !watch.released) =>
+        {
+            None
+        }
         Some(o) => {
             o.excess = o.excess.max(t.excess);
             o.released = o.released.max(t.released);
@@ -229,16 +235,31 @@ mod tests {
     fn timers_take_part_by_dominance() {
         let mut v = JointSet::default();
         let t = |excess, released| Timers { excess, released };
-        assert_eq!(v.admit(7, t(3, 10)), Some(t(3, 10)));
+        let all = Watch::ALL;
+        assert_eq!(v.admit(7, t(3, 10), all), Some(t(3, 10)));
         // Covered: no further on in either timer.
-        assert_eq!(v.admit(7, t(3, 10)), None);
-        assert_eq!(v.admit(7, t(0, 4)), None);
+        assert_eq!(v.admit(7, t(3, 10), all), None);
+        assert_eq!(v.admit(7, t(0, 4), all), None);
         // Further on in one: goes on with the larger of each.
-        assert_eq!(v.admit(7, t(5, 2)), Some(t(5, 10)));
-        assert_eq!(v.admit(7, t(4, 9)), None);
+        assert_eq!(v.admit(7, t(5, 2), all), Some(t(5, 10)));
+        assert_eq!(v.admit(7, t(4, 9), all), None);
         // Another key is another state.
-        assert_eq!(v.admit(8, t(0, 0)), Some(t(0, 0)));
+        assert_eq!(v.admit(8, t(0, 0), all), Some(t(0, 0)));
         assert_eq!(v.len(), 2);
+        // A timer no longer watched (its requirements all violated) does not tell states
+        // apart; the other still does, and the state goes on with the larger of each.
+        let released_only = Watch {
+            excess: false,
+            released: true,
+        };
+        assert_eq!(v.admit(7, t(9, 10), released_only), None);
+        assert_eq!(v.admit(7, t(9, 11), released_only), Some(t(9, 11)));
+        let none = Watch {
+            excess: false,
+            released: false,
+        };
+        assert_eq!(v.admit(7, t(40, 200), none), None);
+        assert_eq!(v.admit(9, t(1, 1), none), Some(t(1, 1)));
     }
 
     #[test]
@@ -255,7 +276,12 @@ mod tests {
                 excess: (x >> 40) as u16 % 50,
                 released: (x >> 50) as u16 % 300,
             };
-            assert_eq!(v.admit(key, t), admit_by_map(&mut m, key, t));
+            // Mostly both timers watched, now and then one or none (as requirements fall).
+            let watch = Watch {
+                excess: !(x >> 8).is_multiple_of(4),
+                released: !(x >> 10).is_multiple_of(4),
+            };
+            assert_eq!(v.admit(key, t, watch), admit_by_map(&mut m, key, t, watch));
         }
         assert_eq!(v.len(), m.len());
         assert!(v.slots.len() >= 2 * v.len());

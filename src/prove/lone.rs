@@ -18,7 +18,7 @@
 use super::Requirement as Req;
 use super::faulty::Faulty;
 use super::joint::{DigestIndex, JointSet};
-use super::search::{FaultResult, PreSet, Timers, digest};
+use super::search::{FaultResult, PreSet, Timers, Watch, digest};
 use crate::controller::{Outputs, Sample, State};
 use crate::model::Model;
 use crate::plant::PlantState;
@@ -314,7 +314,7 @@ impl LoneWalks {
                 released: 0,
             };
             self.folded
-                .admit((u64::from(li) << 32) | u64::from(t), run)
+                .admit((u64::from(li) << 32) | u64::from(t), run, Watch::ALL)
                 .is_some()
         };
         lone.fold_figures(res, model, pre, reqs, t, timers, since, walk);

@@ -86,13 +86,48 @@ pub struct Timers {
     pub released: u16,
 }
 
+/// Which requirement timers still decide a verdict. A timer whose requirements are all found
+/// violated (their verdicts final) is still carried, for the figures, but no longer tells
+/// states apart: a state reached again further on only in that timer is not expanded again.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Watch {
+    pub excess: bool,
+    pub released: bool,
+}
+
+impl Watch {
+    /// Both timers watched.
+    pub const ALL: Watch = Watch {
+        excess: true,
+        released: true,
+    };
+
+    /// The timers of the requirements not yet `found` violated.
+    pub fn open(reqs: &[Req], found: &[bool]) -> Watch {
+        let mut w = Watch {
+            excess: false,
+            released: false,
+        };
+        for (r, &done) in reqs.iter().zip(found) {
+            match r {
+                Req::Excess { .. } => w.excess |= !done,
+                Req::Idle { .. } => w.released |= !done,
+                Req::Never { .. } => {}
+            }
+        }
+        w
+    }
+}
+
 impl Timers {
     /// Dominance of requirement timers: `None` when `self` (a state's stored timers) covers
-    /// `t` (no further on in either timer), else the larger of each, which the state goes on
-    /// with. See [`super::joint::JointSet::admit`].
+    /// `t` (no further on in either watched timer), else the larger of each, which the state
+    /// goes on with. See [`super::joint::JointSet::admit`].
     #[inline]
-    pub fn absorb(self, t: Timers) -> Option<Timers> {
-        if self.excess >= t.excess && self.released >= t.released {
+    pub fn absorb(self, t: Timers, watch: Watch) -> Option<Timers> {
+        if (!watch.excess || self.excess >= t.excess)
+            && (!watch.released || self.released >= t.released)
+        {
             return None;
         }
         Some(Timers {
@@ -938,7 +973,7 @@ pub fn search_fault<'v>(
             excess: 0,
             released: o.released,
         };
-        if fg.admit(f, part(oi as u32), timers).is_some() {
+        if fg.admit(f, part(oi as u32), timers, Watch::ALL).is_some() {
             frontier.push(Joint {
                 f,
                 t: oi as u32,
@@ -960,6 +995,8 @@ pub fn search_fault<'v>(
         &mut found,
         &mut res,
     );
+    // The timers that still take part in dominance.
+    let mut watch = Watch::open(reqs, &found);
     let mut acts = Vec::new();
     let mut next_frontier = Vec::new();
     let mut sort_scratch = Vec::new();
@@ -1093,6 +1130,7 @@ pub fn search_fault<'v>(
                                 confirm(vehicle, inj, &pedal, inject_step, second_step, ri, r)
                             {
                                 found[ri] = true;
+                                watch = Watch::open(reqs, &found);
                                 res.violations.push(v);
                             } else {
                                 res.unconfirmed += 1;
@@ -1142,7 +1180,7 @@ pub fn search_fault<'v>(
                             continue;
                         }
                     }
-                    let Some(t) = fg.admit(f2, part(t2), timers) else {
+                    let Some(t) = fg.admit(f2, part(t2), timers, watch) else {
                         continue;
                     };
                     if arena.len() >= cfg.max_states.min(MAX_NODES) {
@@ -1285,6 +1323,39 @@ mod tests {
             let key = |v: &[Joint]| v.iter().map(|j| (j.f, j.id)).collect::<Vec<_>>();
             assert_eq!(key(&v), key(&want), "{n} states over {span} nodes");
         }
+    }
+
+    #[test]
+    fn a_timer_is_watched_while_one_of_its_requirements_is_open() {
+        let reqs = [
+            Req::Excess {
+                limit: 5.0,
+                steps: 40,
+            },
+            Req::Never {
+                above: 90.0,
+                unless_driver: Some(90.0),
+            },
+            Req::Idle {
+                idle: 8.0,
+                steps: 200,
+            },
+            Req::Excess {
+                limit: 20.0,
+                steps: 10,
+            },
+        ];
+        let w = |found: [bool; 4]| {
+            let w = Watch::open(&reqs, &found);
+            (w.excess, w.released)
+        };
+        assert_eq!(w([false; 4]), (true, true));
+        // One excess requirement still open keeps the excess timer.
+        assert_eq!(w([true, false, false, false]), (true, true));
+        assert_eq!(w([true, false, false, true]), (false, true));
+        assert_eq!(w([true, false, true, true]), (false, false));
+        // The ceiling has no timer.
+        assert_eq!(w([false, true, true, false]), (true, false));
     }
 
     #[test]
