@@ -926,16 +926,15 @@ pub fn search_fault<'v>(
     let mut end_modes = vec![false; model.modes.len()];
     let mut found = vec![false; reqs.len()];
     let mut tries = vec![0usize; reqs.len()];
-    // The twin's part of a joint key: its index, or the class of its quantised plate.
-    let twin_part = |t: u32| -> u64 {
+    // The twin's part of a joint key, beside the faulty node (which holds it, see
+    // [`Faulty::admit`]): its index, or the class of its quantised plate.
+    let part = |t: u32| -> u32 {
         if cfg.exact_twin {
-            u64::from(t)
+            t
         } else {
-            u64::from(pre.hot[t as usize].class)
+            pre.hot[t as usize].class
         }
     };
-    // The joint key beside the faulty node (which holds it, see [`Faulty::admit`]).
-    let part = |t: u32| -> u32 { twin_part(t) as u32 };
 
     // Roots: the fault injected into every fault-free state, i.e. at every injection instant
     // the fault-free set tells apart at the resolution.
@@ -1327,24 +1326,14 @@ mod tests {
 
     #[test]
     fn a_timer_is_watched_while_one_of_its_requirements_is_open() {
-        let reqs = [
-            Req::Excess {
-                limit: 5.0,
-                steps: 40,
-            },
-            Req::Never {
-                above: 90.0,
-                unless_driver: Some(90.0),
-            },
-            Req::Idle {
-                idle: 8.0,
-                steps: 200,
-            },
-            Req::Excess {
-                limit: 20.0,
-                steps: 10,
-            },
-        ];
+        // The van's excess, ceiling and idle requirements, and a second excess requirement.
+        let model = crate::model::lower(include_str!("../../scenarios/van/van_throttle.limp"))
+            .expect("the van lowers");
+        let mut reqs = crate::prove::requirements(&model);
+        reqs.push(Req::Excess {
+            limit: 20.0,
+            steps: 10,
+        });
         let w = |found: [bool; 4]| {
             let w = Watch::open(&reqs, &found);
             (w.excess, w.released)
