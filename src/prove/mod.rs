@@ -14,7 +14,6 @@ use crate::faults::{ActuatorFault, Injection};
 use crate::model::{FaultScope, Model};
 use crate::sim::system::Vehicle;
 use crate::time::Time;
-use rayon::prelude::*;
 use search::FaultResult;
 
 /// What the search covers; the output states it, so a reader knows what "exhaustive" meant.
@@ -296,10 +295,12 @@ pub fn prove(
     let rows: Vec<Row> = if cfg.jobs == 1 {
         sets.iter().map(run).collect()
     } else {
-        // The searches one by one, the likely largest first (those on the driver's own
-        // sensor, which leave the driver steering the faulty vehicle), so that no long one
-        // starts last; each result goes back to its place, so the output keeps the fault
-        // space's order whatever the schedule.
+        // The searches one by one from a shared queue, the likely largest first (those on
+        // the driver's own sensor, which leave the driver steering the faulty vehicle), so
+        // that no long one starts last: each worker takes the next search when it is free
+        // (a split of the list between workers would leave one idle at the end while the
+        // other finishes its half). Each result goes back to its place, so the output keeps
+        // the fault space's order whatever the schedule.
         let mut order: Vec<usize> = (0..sets.len()).collect();
         order.sort_by_key(|&i| !sets[i].iter().any(|j| on_driver(model, j)));
         let pool = rayon::ThreadPoolBuilder::new()
@@ -307,18 +308,28 @@ pub fn prove(
             .build();
         match pool {
             Ok(p) => {
-                let done: Vec<(usize, Row)> = p.install(|| {
-                    order
-                        .par_iter()
-                        .with_max_len(1)
-                        .map(|&i| (i, run(&sets[i])))
-                        .collect()
+                let next = std::sync::atomic::AtomicUsize::new(0);
+                let slots: Vec<std::sync::Mutex<Option<Row>>> = (0..sets.len())
+                    .map(|_| std::sync::Mutex::new(None))
+                    .collect();
+                p.scope(|s| {
+                    for _ in 0..p.current_num_threads() {
+                        s.spawn(|_| {
+                            loop {
+                                let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                                let Some(&i) = order.get(k) else { break };
+                                let row = run(&sets[i]);
+                                if let Ok(mut slot) = slots[i].lock() {
+                                    *slot = Some(row);
+                                }
+                            }
+                        });
+                    }
                 });
-                let mut rows: Vec<Option<Row>> = (0..sets.len()).map(|_| None).collect();
-                for (i, r) in done {
-                    rows[i] = Some(r);
-                }
-                rows.into_iter().flatten().collect()
+                slots
+                    .into_iter()
+                    .filter_map(|m| m.into_inner().ok().flatten())
+                    .collect()
             }
             Err(_) => sets.iter().map(run).collect(),
         }
