@@ -473,7 +473,7 @@ pub fn prove(path: &str, cfg: &ProveConfig) -> Outcome {
         Exit::Holds
     };
     if exit == Exit::Inconclusive {
-        stderr.push_str("inconclusive: a bound was hit before a verdict (see the summary)\n");
+        stderr.push_str("inconclusive: a bound was hit, or candidate violations stayed unconfirmed, before a verdict (see the summary)\n");
     }
     Outcome {
         stdout,

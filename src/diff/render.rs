@@ -12,6 +12,7 @@ use std::fmt::Write;
 const CAUTION: &str = "limpet is a design aid, not a substitute for a safety case, vehicle testing, or regulations and licensed engineering judgment.";
 
 const BOUND: &str = "a search hit its state bound: cells marked `?` are not verdicts; run `limpet prove` on each revision for a full search";
+const UNRESOLVED: &str = "cells marked `unresolved` met candidate violations that no exact replay confirmed: they are not verdicts (a finer --resolution may decide them)";
 
 fn plural(n: usize, one: &str, many: &str) -> String {
     format!("{n} {}", if n == 1 { one } else { many })
@@ -186,6 +187,9 @@ pub fn text(r: &Report) -> String {
         if m.bound_hit {
             let _ = writeln!(o, "  {BOUND}");
         }
+        if m.unresolved {
+            let _ = writeln!(o, "  {UNRESOLVED}");
+        }
         for row in &m.changed {
             match (row.in_old, row.in_new) {
                 (true, false) => {
@@ -343,6 +347,9 @@ pub fn markdown(r: &Report) -> String {
         let _ = writeln!(o, "_{}_\n", cell(&m.coverage));
         if m.bound_hit {
             let _ = writeln!(o, "{BOUND}\n");
+        }
+        if m.unresolved {
+            let _ = writeln!(o, "{UNRESOLVED}\n");
         }
         if m.changed.is_empty() {
             let _ = writeln!(o, "All {} are the same.", plural(m.rows, "row", "rows"));

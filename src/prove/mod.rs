@@ -186,7 +186,11 @@ pub enum Verdict {
     Violated,
     /// No violation found, but the search hit its bound.
     Inconclusive,
-    /// No violation within the search's coverage.
+    /// No violation confirmed, but the search met candidate violations that no exact replay
+    /// confirmed: states merged at the resolution leave the requirement undecided there (a
+    /// finer `--resolution` may decide it).
+    Unresolved,
+    /// No violation, and no candidate of one, within the search's coverage.
     Holds,
 }
 
@@ -200,9 +204,19 @@ impl Row {
             .join(" + ")
     }
 
-    /// Whether the bound left some requirement of this row without a verdict (a search that
-    /// hit it after violating every requirement is decided).
+    /// Whether some requirement of this row is left without a verdict, by the bound or by
+    /// unconfirmed candidates (a search that violated every requirement is decided).
     pub fn undecided(&self, p: &Proof) -> bool {
+        (0..p.requirements.len()).any(|ri| {
+            matches!(
+                self.verdict(ri),
+                Verdict::Inconclusive | Verdict::Unresolved
+            )
+        })
+    }
+
+    /// Whether the bound left some requirement of this row without a verdict.
+    pub fn bound_hit(&self, p: &Proof) -> bool {
         (0..p.requirements.len()).any(|ri| self.verdict(ri) == Verdict::Inconclusive)
     }
 
@@ -212,6 +226,8 @@ impl Row {
             Verdict::Violated
         } else if self.result.truncated {
             Verdict::Inconclusive
+        } else if self.result.unconfirmed.get(ri).is_some_and(|&n| n > 0) {
+            Verdict::Unresolved
         } else {
             Verdict::Holds
         }
@@ -241,6 +257,18 @@ impl Proof {
 
     pub fn inconclusive(&self) -> bool {
         self.pre_truncated || self.rows.iter().any(|r| r.undecided(self))
+    }
+
+    /// A search hit `--max-states` before a verdict.
+    pub fn bound_hit(&self) -> bool {
+        self.pre_truncated || self.rows.iter().any(|r| r.bound_hit(self))
+    }
+
+    /// Some cell is unresolved (see [`Verdict::Unresolved`]).
+    pub fn unresolved(&self) -> bool {
+        self.rows
+            .iter()
+            .any(|r| (0..self.requirements.len()).any(|ri| r.verdict(ri) == Verdict::Unresolved))
     }
 }
 
@@ -349,6 +377,50 @@ pub fn prove(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Common practice, no source: a confirmed violation decides a cell whatever else
+    /// happened; a search cut off by its bound decides nothing it did not violate; candidates
+    /// that no exact replay confirmed leave a cell unresolved, never held.
+    #[test]
+    fn a_cell_holds_only_without_bound_or_unconfirmed_candidates() {
+        let row = |truncated: bool, unconfirmed: Vec<usize>, violated: Option<usize>| Row {
+            faults: Vec::new(),
+            seen_by: Vec::new(),
+            uncorrectable: false,
+            result: FaultResult {
+                truncated,
+                unconfirmed,
+                violations: violated
+                    .map(|requirement| search::Violation {
+                        requirement,
+                        second_step: None,
+                        pedal: vec![0.0],
+                        inject_step: 0,
+                        at: Time(0),
+                        opening: 95.0,
+                        bound: 90.0,
+                    })
+                    .into_iter()
+                    .collect(),
+                ..FaultResult::default()
+            },
+        };
+        let verdicts = |r: &Row| (0..3).map(|ri| r.verdict(ri)).collect::<Vec<_>>();
+        use Verdict::*;
+        assert_eq!(
+            verdicts(&row(false, vec![0, 3, 0], None)),
+            [Holds, Unresolved, Holds]
+        );
+        assert_eq!(
+            verdicts(&row(false, vec![0, 3, 0], Some(1))),
+            [Holds, Violated, Holds]
+        );
+        assert_eq!(
+            verdicts(&row(true, vec![0, 3, 0], Some(0))),
+            [Violated, Inconclusive, Inconclusive]
+        );
+        assert_eq!(verdicts(&row(false, Vec::new(), None)), [Holds; 3]);
+    }
 
     #[test]
     fn flags_out_of_range_are_bad_input() {

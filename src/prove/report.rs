@@ -47,12 +47,14 @@ pub fn detection(r: &super::search::FaultResult) -> String {
     }
 }
 
-/// `ok`, `VIOLATED` or `?` (bound hit) per requirement.
+/// `ok`, `VIOLATED`, `?` (bound hit) or `unresolved` (unconfirmed candidates) per
+/// requirement.
 pub fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
     (0..p.requirements.len())
         .map(|ri| match row.verdict(ri) {
             super::Verdict::Violated => "VIOLATED",
             super::Verdict::Inconclusive => "?",
+            super::Verdict::Unresolved => "unresolved",
             super::Verdict::Holds => "ok",
         })
         .collect()
@@ -277,14 +279,21 @@ pub fn summary(m: &Model, p: &Proof) -> String {
             .filter(|row| row.result.violations.iter().any(|v| v.requirement == ri))
             .collect();
         let correctable = bad.iter().filter(|r| !r.uncorrectable).count();
+        let count = |v: super::Verdict| p.rows.iter().filter(|r| r.verdict(ri) == v).count();
+        let (bound, unresolved) = (
+            count(super::Verdict::Inconclusive),
+            count(super::Verdict::Unresolved),
+        );
         let verdict = if correctable > 0 {
             format!("VIOLATED by {correctable} fault set(s)")
-        } else if p.inconclusive() {
+        } else if p.pre_truncated || bound > 0 {
             "inconclusive (a bound was hit)".into()
+        } else if unresolved > 0 {
+            format!("unresolved for {unresolved} fault set(s) (unconfirmed candidates)")
         } else {
             "holds".into()
         };
-        let extra = if bad.len() > correctable {
+        let mut extra = if bad.len() > correctable {
             format!(
                 "; violated by {} uncorrectable actuator fault(s)",
                 bad.len() - correctable
@@ -292,6 +301,14 @@ pub fn summary(m: &Model, p: &Proof) -> String {
         } else {
             String::new()
         };
+        if correctable > 0 {
+            // What the other fault sets say of it.
+            let holds = count(super::Verdict::Holds);
+            let _ = write!(
+                extra,
+                "; holds for {holds}, unresolved for {unresolved}, bound hit for {bound}"
+            );
+        }
         let _ = writeln!(o, "{}: {verdict}{extra}", r.text(m));
     }
     if p.pre_truncated {
@@ -301,12 +318,24 @@ pub fn summary(m: &Model, p: &Proof) -> String {
             p.config.max_states
         );
     }
-    let truncated = p.rows.iter().filter(|r| r.undecided(p)).count();
+    let truncated = p.rows.iter().filter(|r| r.bound_hit(p)).count();
     if truncated > 0 {
         let _ = writeln!(
             o,
             "bound hit: {truncated} fault search(es) exceeded --max-states {}",
             p.config.max_states
+        );
+    }
+    let (cells, candidates) = p.rows.iter().fold((0, 0), |(c, n), r| {
+        (0..p.requirements.len())
+            .filter(|&ri| r.verdict(ri) == super::Verdict::Unresolved)
+            .fold((c, n), |(c, n), ri| (c + 1, n + r.result.unconfirmed[ri]))
+    });
+    if cells > 0 {
+        let _ = writeln!(
+            o,
+            "unresolved: {cells} cell(s) met {candidates} candidate violation(s) that no exact replay confirmed (states merged at the {} % resolution); neither held nor violated, a finer --resolution may decide them",
+            trim(p.config.resolution)
         );
     }
     let _ = writeln!(o, "{}", coverage(m, p));
@@ -356,6 +385,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
                 "settled_early": r.settled_early,
                 "settled_branches": r.settled,
                 "verdicts": verdicts(p, row),
+                "unconfirmed_candidates": r.unconfirmed,
                 "violations": r.violations.iter().map(|v| serde_json::json!({
                     "requirement": p.requirements[v.requirement].text(m),
                     "at": v.at.as_secs_f64(),

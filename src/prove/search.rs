@@ -489,9 +489,13 @@ pub struct FaultResult {
     pub worst_idle_after_release: Time,
     /// The first (shortest) violation per requirement, each confirmed by an exact replay.
     pub violations: Vec<Violation>,
-    /// Candidate violations that the exact replay of their path did not confirm (an effect of
-    /// merging states at the resolution).
-    pub unconfirmed: usize,
+    /// Per requirement, the candidate violations met in the search that no exact replay
+    /// confirmed: a merged state stands for its first visitor, so a state that breaks the
+    /// requirement there may not on the path that reached it, and the other way round. Every
+    /// candidate is counted; the first [`MAX_CONFIRMATIONS`] are replayed. A requirement
+    /// without a confirmed violation but with candidates is unresolved at the resolution
+    /// (see [`super::Verdict::Unresolved`]), not held.
+    pub unconfirmed: Vec<usize>,
     /// Every requirement was found violated (and confirmed) before the state space was
     /// exhausted, so the search ended there: the verdicts are final, the figures cover the
     /// part explored.
@@ -910,6 +914,7 @@ pub fn search_fault<'v>(
 
     let mut res = FaultResult {
         worst_opening_below_ceiling: f64::NEG_INFINITY,
+        unconfirmed: vec![0; reqs.len()],
         ..FaultResult::default()
     };
     // The lone futures of vehicles the driver no longer steers (see `LoneWalks`), each
@@ -1118,7 +1123,13 @@ pub fn search_fault<'v>(
                                 }
                             }
                         };
-                        if violated && !found[ri] && tries[ri] < MAX_CONFIRMATIONS {
+                        if !violated || found[ri] {
+                            continue;
+                        }
+                        if tries[ri] >= MAX_CONFIRMATIONS {
+                            // Replays given up for this requirement: still a candidate.
+                            res.unconfirmed[ri] += 1;
+                        } else {
                             tries[ri] += 1;
                             let (pedal, inject_step, second_step) =
                                 joint_path(pre, &arena, &g, node.id, driver, inject_b);
@@ -1132,7 +1143,7 @@ pub fn search_fault<'v>(
                                 watch = Watch::open(reqs, &found);
                                 res.violations.push(v);
                             } else {
-                                res.unconfirmed += 1;
+                                res.unconfirmed[ri] += 1;
                             }
                         }
                     }

@@ -248,6 +248,9 @@ impl Page<'_> {
                     }
                     crate::prove::Verdict::Violated => ("violated", "VIOLATED"),
                     crate::prove::Verdict::Inconclusive => ("inconclusive", "? (bound hit)"),
+                    crate::prove::Verdict::Unresolved => {
+                        ("inconclusive", "unresolved (unconfirmed candidates)")
+                    }
                     crate::prove::Verdict::Holds => ("holds", "ok"),
                 };
                 let _ = write!(o, "<td class=\"{class}\">{text}</td>");

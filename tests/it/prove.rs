@@ -5,7 +5,7 @@
 use crate::Rng;
 use limpet::app::{self, Exit, Format, RunConfig};
 use limpet::model::Model;
-use limpet::prove::{self, Config, search};
+use limpet::prove::{self, Config, Verdict, search};
 use limpet::sim::system::Vehicle;
 use limpet::time::Time;
 
@@ -182,11 +182,14 @@ fn random_campaign_finds_nothing_the_prover_missed() {
     );
 }
 
-/// Sampling against a verdict that holds: a feedback track open on the reference policy is
+/// Sampling against verdicts that hold: a feedback track open on the reference policy is
 /// caught by its range check, the drive goes off and the springs close the plate. The
-/// prover, with the twin paired exactly, says every requirement holds (the search closed
-/// without hitting a bound); seeded random drives with the fault at random instants, replayed
-/// exactly, find no violation either.
+/// prover, with the twin paired exactly, says the excess and idle requirements hold (the
+/// search closed without hitting a bound, and met no candidate violation of them). The
+/// ceiling is unresolved at this resolution: plates of one cell on either side of 90 % are
+/// merged, so the search meets candidates that no exact replay confirms, and it says so
+/// rather than calling the ceiling held. Seeded random drives with the fault at random
+/// instants, replayed exactly, find no violation of the held requirements either.
 #[test]
 fn a_fault_that_prove_passes_survives_a_random_campaign() {
     let m = load("scenarios/van/van_throttle.limp");
@@ -203,7 +206,22 @@ fn a_fault_that_prove_passes_survives_a_random_campaign() {
         "{:?}",
         row.result.violations
     );
-    assert!(!proof.violated() && !proof.inconclusive());
+    assert!(!proof.violated() && !proof.bound_hit());
+    let verdicts: Vec<Verdict> = (0..3).map(|ri| row.verdict(ri)).collect();
+    assert_eq!(
+        verdicts,
+        [Verdict::Holds, Verdict::Unresolved, Verdict::Holds],
+        "excess, ceiling, idle; candidates {:?}",
+        row.result.unconfirmed
+    );
+    assert!(proof.inconclusive(), "an unresolved cell is not a proof");
+    let summary = prove::report::summary(&m, &proof);
+    assert!(
+        summary
+            .contains("never above 90 % unless driver above 90 %: unresolved for 1 fault set(s)")
+            && summary.contains("unresolved: 1 cell(s) met"),
+        "{summary}"
+    );
     let vehicle = Vehicle::new(&m).expect("plant derives");
     let grid = search::grid(&cfg);
     let horizon = (cfg.horizon.0 / m.period.0) as usize;
@@ -225,10 +243,12 @@ fn a_fault_that_prove_passes_survives_a_random_campaign() {
             None,
             &proof.requirements,
         );
-        assert!(
-            hits.iter().all(Option::is_none),
-            "sampling broke a requirement the prover says holds: {hits:?}"
-        );
+        for (ri, hit) in hits.iter().enumerate() {
+            assert!(
+                hit.is_none() || verdicts[ri] != Verdict::Holds,
+                "sampling broke a requirement the prover says holds: {hit:?}"
+            );
+        }
     }
 }
 
