@@ -121,6 +121,10 @@ enum Command {
         /// Only fault sets whose description contains this text.
         #[arg(long)]
         only: Option<String>,
+        /// Candidate violations screened by exact replay per requirement and fault, beyond the
+        /// first 64 (a larger number may confirm more; unconfirmed ones leave a cell unresolved).
+        #[arg(long, default_value_t = limpet::prove::Config::default().screen)]
+        screen: usize,
         /// Write each counterexample as a scenario script into this directory.
         #[arg(long)]
         counterexamples: Option<String>,
@@ -258,6 +262,7 @@ fn main() -> ExitCode {
             exact_twin,
             double,
             only,
+            screen,
             counterexamples,
             format,
         } => {
@@ -274,6 +279,7 @@ fn main() -> ExitCode {
                     jobs,
                     scope: double.then_some(limpet::model::FaultScope::Double),
                     only,
+                    screen,
                 };
                 let progress = std::io::IsTerminal::is_terminal(&std::io::stderr());
                 let cfg = app::ProveConfig {

@@ -37,6 +37,9 @@ pub struct Config {
     pub scope: Option<FaultScope>,
     /// Only faults whose description contains this text (for focused runs).
     pub only: Option<String>,
+    /// Candidate violations screened per requirement and fault beyond the first
+    /// [`search::MAX_CONFIRMATIONS`] (see [`search::FaultResult::unconfirmed`]).
+    pub screen: usize,
 }
 
 impl Default for Config {
@@ -51,6 +54,7 @@ impl Default for Config {
             jobs: 0,
             scope: None,
             only: None,
+            screen: 4096,
         }
     }
 }

@@ -334,8 +334,9 @@ pub fn summary(m: &Model, p: &Proof) -> String {
     if cells > 0 {
         let _ = writeln!(
             o,
-            "unresolved: {cells} cell(s) met {candidates} candidate violation(s) that no exact replay confirmed (states merged at the {} % resolution); neither held nor violated, a finer --resolution may decide them",
-            trim(p.config.resolution)
+            "unresolved: {cells} cell(s) met {candidates} candidate violation(s) that no exact replay confirmed (states merged at the {} % resolution; the first 64 and up to --screen {} more per requirement replayed); neither held nor violated: a larger --screen may confirm some, a finer --resolution may decide them",
+            trim(p.config.resolution),
+            p.config.screen
         );
     }
     let _ = writeln!(o, "{}", coverage(m, p));
@@ -403,6 +404,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
             "horizon_ms": p.config.horizon.as_ms_f64(),
             "max_states": p.config.max_states,
             "free_pedal": p.config.free_pedal,
+            "screen": p.config.screen,
             "exact_twin": p.config.exact_twin,
         },
         "requirements": p.requirements.iter().map(|r| r.text(m)).collect::<Vec<_>>(),

@@ -507,8 +507,11 @@ pub struct FaultResult {
     pub faulty_states: usize,
 }
 
-/// How many candidate violations of one requirement are replayed before the search gives up
-/// confirming that requirement for this fault.
+/// How many candidate violations of one requirement are replayed from key on before the
+/// search screens further ones first, up to `--screen` of them (`Config::screen`): each is
+/// replayed from the stored fault-free state at its injection (no prefix to drive again), and
+/// from key on only if that shows the violation. A screen can miss a violation (see
+/// [`Prefix::stored`]); that candidate then stays unconfirmed, so the cell stays unresolved.
 pub const MAX_CONFIRMATIONS: usize = 64;
 
 /// Replays a pedal path exactly, with the faults injected at the start of `inject_step`, beside
@@ -579,6 +582,21 @@ impl<'v> Prefix<'v> {
             sys,
             steps: pedal.len() as u32,
             released,
+        }
+    }
+
+    /// The fault-free vehicle as the pre-fault set stored it at node `i`: the prefix of the
+    /// node's path without stepping it again. A node reached again with the pedal released
+    /// for longer takes the new path and state, while the nodes stepped from its old state
+    /// keep theirs, so the state may not be the one its path gives: use this only to screen
+    /// (see the search's confirmations), and [`Prefix::drive`] for anything reported.
+    pub fn stored(vehicle: &'v Vehicle, pre: &PreSet<'v>, i: u32) -> Self {
+        let n = &pre.nodes[i as usize];
+        Prefix {
+            vehicle,
+            sys: n.sys.clone(),
+            steps: n.depth,
+            released: u32::from(n.released),
         }
     }
 
@@ -1126,19 +1144,28 @@ pub fn search_fault<'v>(
                         if !violated || found[ri] {
                             continue;
                         }
-                        if tries[ri] >= MAX_CONFIRMATIONS {
+                        if tries[ri] >= MAX_CONFIRMATIONS.saturating_add(cfg.screen) {
                             // Replays given up for this requirement: still a candidate.
                             res.unconfirmed[ri] += 1;
                         } else {
                             tries[ri] += 1;
-                            let (pedal, inject_step, second_step) =
+                            let (pedal, inject_step, second_step, origin) =
                                 joint_path(pre, &arena, &g, node.id, driver, inject_b);
                             // Merged states stand for their first visitor: replay the path
                             // exactly, faulty and fault-free, and keep the violation only if
-                            // it is real.
-                            if let Some(v) =
+                            // it is real. Past the first few, screen it first.
+                            let screened = tries[ri] <= MAX_CONFIRMATIONS
+                                || Prefix::stored(vehicle, pre, origin)
+                                    .replay(inj, &pedal, second_step, std::slice::from_ref(r))
+                                    .pop()
+                                    .flatten()
+                                    .is_some();
+                            let confirmed = if screened {
                                 confirm(vehicle, inj, &pedal, inject_step, second_step, ri, r)
-                            {
+                            } else {
+                                None
+                            };
+                            if let Some(v) = confirmed {
                                 found[ri] = true;
                                 watch = Watch::open(reqs, &found);
                                 res.violations.push(v);
@@ -1265,7 +1292,8 @@ pub fn search_fault<'v>(
 
 /// The pedal path from key on to the successor of stored state `id` under pedal `driver`:
 /// the fault-free prefix to the injection, then the joint path. Returns the path, the step the
-/// fault is injected at, and a pair's second fault's step.
+/// fault is injected at, a pair's second fault's step, and the fault-free node the fault was
+/// injected into.
 fn joint_path(
     pre: &PreSet<'_>,
     arena: &[(u32, u8, u32)],
@@ -1273,7 +1301,7 @@ fn joint_path(
     id: u32,
     driver: f64,
     inject_b: bool,
-) -> (Vec<f64>, u32, Option<u32>) {
+) -> (Vec<f64>, u32, Option<u32>, u32) {
     let mut tail = vec![(driver, inject_b)];
     let mut id = id;
     let mut origin = 0;
@@ -1294,7 +1322,7 @@ fn joint_path(
         .position(|&(_, b)| b)
         .map(|i| inject_step + i as u32);
     pedal.extend(tail.iter().map(|&(p, _)| p));
-    (pedal, inject_step, second_step)
+    (pedal, inject_step, second_step, origin)
 }
 
 #[cfg(test)]

@@ -364,3 +364,47 @@ fn a_track_stuck_under_a_held_pedal_is_latent() {
         "the matrix says so"
     );
 }
+
+/// Screening candidates past the first 64 finds a violation that those alone miss: a
+/// feedback track reading 94.67 % of its value (just inside the disagreement check) makes the
+/// position loop hold the plate a little above where it should. With the driver at 90 % or
+/// below, the plate passes 90 % while the fault-free one stays under. The search meets tens of
+/// thousands of candidates of the ceiling. Without the screen the first 64 replays confirm
+/// none, so the cell is unresolved. With it, one is confirmed, and its path replays from
+/// key on to the same violation.
+#[test]
+fn screening_candidates_confirms_a_violation_the_first_replays_miss() {
+    let m = load("scenarios/van/van_throttle.limp");
+    let run = |screen: usize| {
+        let cfg = Config {
+            max_states: 10_000_000,
+            jobs: 1,
+            only: Some("throttle.b gain 94.67".into()),
+            screen,
+            ..Config::default()
+        };
+        let p = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+        assert_eq!(p.rows.len(), 1);
+        assert!(!p.rows[0].result.truncated, "the search must close");
+        p
+    };
+    let ceiling = 1;
+    let bare = run(0);
+    assert_eq!(bare.rows[0].verdict(ceiling), Verdict::Unresolved);
+    assert!(bare.rows[0].result.unconfirmed[ceiling] > 64);
+    let screened = run(Config::default().screen);
+    let row = &screened.rows[0];
+    assert_eq!(row.verdict(ceiling), Verdict::Violated);
+    let v = &row.result.violations[0];
+    assert!(v.opening > 90.0 && v.opening < 90.5, "{v:?}");
+    let vehicle = Vehicle::new(&m).expect("plant derives");
+    let again = search::replay_check(
+        &vehicle,
+        &row.faults,
+        &v.pedal,
+        v.inject_step,
+        v.second_step,
+        &screened.requirements,
+    );
+    assert_eq!(again[ceiling].as_ref(), Some(v));
+}
