@@ -47,6 +47,23 @@ pub fn detection(r: &super::search::FaultResult) -> String {
     }
 }
 
+/// How far the search went: `closed` when it ran out of new states (or reached the horizon),
+/// else the time after the injection up to which every drive was searched, and why it
+/// stopped there (the bound, or every requirement already violated).
+pub fn searched(m: &Model, r: &super::search::FaultResult) -> String {
+    match r.searched_to {
+        None => "closed".into(),
+        Some(steps) => {
+            let t = ms(Some(Time(m.period.0 * u64::from(steps))));
+            if r.truncated {
+                format!("to {t} (bound)")
+            } else {
+                format!("stopped at {t} (all violated)")
+            }
+        }
+    }
+}
+
 /// `ok`, `VIOLATED`, `?` (bound hit) or `unresolved` (unconfirmed candidates) per
 /// requirement.
 pub fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
@@ -65,6 +82,7 @@ fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
     let r = &row.result;
     let mut c = vec![
         row.describe(m),
+        searched(m, r),
         if row.faults.len() == 1 {
             names(m, &row.seen_by)
         } else {
@@ -87,8 +105,9 @@ fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
 }
 
 /// The reaction matrix's columns before the one-per-requirement verdicts.
-pub const COLUMNS: [&str; 9] = [
+pub const COLUMNS: [&str; 10] = [
     "fault",
+    "searched",
     "seen by (static)",
     "detected by",
     "worst detection",
@@ -320,10 +339,22 @@ pub fn summary(m: &Model, p: &Proof) -> String {
     }
     let truncated = p.rows.iter().filter(|r| r.bound_hit(p)).count();
     if truncated > 0 {
+        let depths = p
+            .rows
+            .iter()
+            .filter(|r| r.bound_hit(p))
+            .filter_map(|r| r.result.searched_to);
+        let (lo, hi) = depths.fold((u32::MAX, 0), |(lo, hi), d| (lo.min(d), hi.max(d)));
+        let at = |s: u32| ms(Some(Time(m.period.0 * u64::from(s))));
+        let span = if lo >= hi {
+            at(hi)
+        } else {
+            format!("{}-{}", at(lo).trim_end_matches(" ms"), at(hi))
+        };
         let _ = writeln!(
             o,
-            "bound hit: {truncated} fault search(es) exceeded --max-states {}",
-            p.config.max_states
+            "bound hit: {truncated} fault search(es) exceeded --max-states {} before closing; they searched every drive only to {span} after the injection (column 'searched'), so their figures cover only that much of the {} horizon",
+            p.config.max_states, p.config.horizon
         );
     }
     let (cells, candidates) = p.rows.iter().fold((0, 0), |(c, n), r| {
@@ -384,6 +415,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
                 "injection_instants": r.roots,
                 "truncated": r.truncated,
                 "settled_early": r.settled_early,
+                "searched_to_ms": r.searched_to.map(|s| Time(m.period.0 * u64::from(s)).as_ms_f64()),
                 "settled_branches": r.settled,
                 "verdicts": verdicts(p, row),
                 "unconfirmed_candidates": r.unconfirmed,

@@ -500,6 +500,11 @@ pub struct FaultResult {
     /// exhausted, so the search ended there: the verdicts are final, the figures cover the
     /// part explored.
     pub settled_early: bool,
+    /// When the search stopped short (the bound, or `settled_early`): the steps after the
+    /// injection up to which every drive was searched. A bounded breadth-first search from
+    /// every injection instant at once may stop only a few periods in; its figures (detection,
+    /// end modes, worst openings) cover only that much.
+    pub searched_to: Option<u32>,
     /// Branches ended because the faulty vehicle settled for good at an opening that breaks
     /// nothing (see the search).
     pub settled: usize,
@@ -989,6 +994,7 @@ pub fn search_fault<'v>(
         );
         if f == DROPPED {
             res.truncated = true;
+            res.searched_to.get_or_insert(0);
             continue;
         }
         let timers = Timers {
@@ -1031,6 +1037,7 @@ pub fn search_fault<'v>(
         for (k, node) in frontier.iter().enumerate() {
             if all_found(&found) {
                 res.settled_early = true;
+                res.searched_to.get_or_insert(since);
                 break 'search;
             }
             // The records of a state a few places ahead's successors, where they are known
@@ -1066,6 +1073,7 @@ pub fn search_fault<'v>(
                     let f2 = fg.succ(node.f, ai, a, inject_b);
                     if f2 == DROPPED {
                         res.truncated = true;
+                        res.searched_to.get_or_insert(since);
                         continue;
                     }
                     let there = *fg.hot(f2);
@@ -1222,6 +1230,7 @@ pub fn search_fault<'v>(
                     };
                     if arena.len() >= cfg.max_states.min(MAX_NODES) {
                         res.truncated = true;
+                        res.searched_to.get_or_insert(since);
                         continue;
                     }
                     any_new = true;
@@ -1261,6 +1270,9 @@ pub fn search_fault<'v>(
     res.states = arena.len();
     res.faulty_states = fg.nodes();
     res.truncated |= fg.truncated;
+    if res.truncated {
+        res.searched_to.get_or_insert(since);
+    }
     res.monitors = (0..model.faults.len())
         .filter(|&f| monitor_seen[f / 64] & (1 << (f % 64)) != 0)
         .collect();

@@ -220,6 +220,7 @@ impl Page<'_> {
             };
             let cells = [
                 fault,
+                crate::prove::report::searched(m, r),
                 if row.faults.len() == 1 {
                     names(&row.seen_by)
                 } else {

@@ -408,3 +408,44 @@ fn screening_candidates_confirms_a_violation_the_first_replays_miss() {
     );
     assert_eq!(again[ceiling].as_ref(), Some(v));
 }
+
+/// The `searched` column's claim, "every drive searched to T after the injection", checked
+/// against searches of their own: with the horizon cut to T, the same fault's search closes
+/// within the bound that stopped the long one, and the long one's depth grows with the bound
+/// until it closes (common practice for bounded breadth-first search, no source).
+#[test]
+fn a_bounded_search_says_how_deep_it_searched() {
+    let m = load("scenarios/van/van_throttle.limp");
+    let run = |max_states: usize, horizon_ms: u64| {
+        let cfg = Config {
+            max_states,
+            horizon: Time::from_ms(horizon_ms),
+            jobs: 1,
+            only: Some("pedal.a open".into()),
+            ..Config::default()
+        };
+        let p = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+        assert_eq!(p.rows.len(), 1);
+        p.rows[0].result.clone()
+    };
+    let mut last = 0;
+    for bound in [30_000, 100_000, 400_000] {
+        let r = run(bound, 1200);
+        assert!(r.truncated, "{bound}");
+        let depth = r
+            .searched_to
+            .expect("a bounded search says how deep it went");
+        assert!(depth >= last, "{bound}: {depth} < {last}");
+        last = depth;
+        let cut = run(bound, 5 * u64::from(depth));
+        assert!(
+            !cut.truncated,
+            "{bound}: the first {depth} periods fit in the bound"
+        );
+        let beyond = run(bound, 5 * u64::from(depth + 1));
+        assert!(beyond.truncated, "{bound}: one period more does not fit");
+    }
+    let closed = run(10_000_000, 1200);
+    assert!(!closed.truncated);
+    assert_eq!(closed.searched_to, None);
+}
