@@ -59,6 +59,9 @@ impl Default for Config {
     }
 }
 
+/// The longest horizon a search takes: as long as a scenario may run.
+pub const MAX_HORIZON: Time = Time(600 * 1_000_000_000);
+
 impl Config {
     /// Validates the grid, resolution and horizon flags: the grid must fit a pedal index in a
     /// byte, and the horizon must leave something to check after an injection.
@@ -67,6 +70,10 @@ impl Config {
             Err(format!(
                 "error: --grid must be in {} .. 100 and --resolution in (0, 50] percent\n  = hint: e.g. --grid 5 --resolution 5\n",
                 search::MIN_GRID
+            ))
+        } else if horizon > MAX_HORIZON {
+            Err(format!(
+                "error: --horizon must be at most {MAX_HORIZON}: each injection's future is searched that far, period by period\n  = hint: a few times the fault-tolerant time interval is enough, e.g. --horizon 1.2s; a longer drive is a scenario for `limpet run`\n"
             ))
         } else if horizon == Time(0) {
             // Nothing after an injection would be checked: every requirement would "hold".
@@ -434,6 +441,12 @@ mod tests {
         assert!(Config::check_flags(5.0, 0.0, ok).is_err());
         assert!(Config::check_flags(5.0, 60.0, ok).is_err());
         assert!(Config::check_flags(f64::NAN, 10.0, ok).is_err());
+        assert!(Config::check_flags(5.0, 10.0, MAX_HORIZON).is_ok());
+        let long = Config::check_flags(5.0, 10.0, Time(MAX_HORIZON.0 + 1)).unwrap_err();
+        assert!(
+            long.contains("--horizon") && long.contains("hint"),
+            "{long}"
+        );
         let zero = Config::check_flags(5.0, 10.0, Time(0)).unwrap_err();
         assert!(
             zero.contains("--horizon") && zero.contains("hint"),

@@ -415,6 +415,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
                 "injection_instants": r.roots,
                 "truncated": r.truncated,
                 "settled_early": r.settled_early,
+                "probe_drives": r.probes,
                 "searched_to_ms": r.searched_to.map(|s| Time(m.period.0 * u64::from(s)).as_ms_f64()),
                 "settled_branches": r.settled,
                 "verdicts": verdicts(p, row),

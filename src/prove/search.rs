@@ -505,6 +505,8 @@ pub struct FaultResult {
     /// every injection instant at once may stop only a few periods in; its figures (detection,
     /// end modes, worst openings) cover only that much.
     pub searched_to: Option<u32>,
+    /// Directed drives probed before the search (see [`probe`]).
+    pub probes: usize,
     /// Branches ended because the faulty vehicle settled for good at an opening that breaks
     /// nothing (see the search).
     pub settled: usize,
@@ -685,9 +687,11 @@ impl<'v> Prefix<'v> {
 /// Directed probes beside the breadth-first search: from chosen injection instants, the driver
 /// holds the pedal, or releases it at once, for the whole horizon. Deep, cheap, and exactly
 /// the drives a reviewer asks about first; every violation found is exact by construction, and
-/// finding every requirement's violation early ends the search of the fault early.
+/// finding every requirement's violation early ends the search of the fault early. The
+/// periods they step in all stay within `--max-states` (a long horizon probes fewer roots), so
+/// the bound bounds their work too. Returns the drives probed.
 #[allow(clippy::too_many_arguments)]
-fn probe(
+pub fn probe(
     vehicle: &Vehicle,
     pre: &PreSet<'_>,
     roots: &[u32],
@@ -696,14 +700,22 @@ fn probe(
     reqs: &[Req],
     found: &mut [bool],
     res: &mut FaultResult,
-) {
+) -> usize {
     let model = vehicle.ctl.model();
     let g = grid(cfg);
     let horizon = usize::try_from(cfg.horizon.0.div_ceil(model.period.0.max(1))).unwrap_or(0);
+    let mut budget = cfg.max_states;
+    let mut drives = 0;
     for &o in roots {
         if found.iter().all(|&f| f) {
-            return;
+            break;
         }
+        let depth = pre.nodes[o as usize].depth as usize;
+        let Some(left) = budget.checked_sub(depth.saturating_add(2 * horizon)) else {
+            break;
+        };
+        budget = left;
+        drives += 2;
         let prefix = pedal_path(pre, o, &g);
         let start = Prefix::drive(vehicle, &prefix);
         let here = g[usize::from(pre.nodes[o as usize].pedal)];
@@ -727,6 +739,7 @@ fn probe(
             }
         }
     }
+    drives
 }
 
 /// The instants probed: per pedal grid value, the first fault-free state reached with it (the
@@ -1013,7 +1026,7 @@ pub fn search_fault<'v>(
     }
     res.roots = frontier.len();
     let root_nodes = fg.nodes() as u32;
-    probe(
+    res.probes = probe(
         vehicle,
         pre,
         &probe_roots(pre, g.len()),

@@ -449,3 +449,30 @@ fn a_bounded_search_says_how_deep_it_searched() {
     assert!(!closed.truncated);
     assert_eq!(closed.searched_to, None);
 }
+
+/// The directed probes step within `--max-states`, so a long horizon cannot make a bounded
+/// run take unbounded time: every drive they step is a horizon long, and their periods in all
+/// stay under the bound (common practice, no source: a bound on states bounds the work).
+#[test]
+fn probes_stay_within_the_bound() {
+    let m = load("scenarios/van/van_throttle.limp");
+    for (max_states, horizon_ms) in [(100_000, 1200), (100_000, 60_000), (100_000, 600_000)] {
+        let cfg = Config {
+            max_states,
+            horizon: Time::from_ms(horizon_ms),
+            jobs: 1,
+            only: Some("pedal.a open".into()),
+            ..Config::default()
+        };
+        let p = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+        let probes = p.rows[0].result.probes;
+        let steps = horizon_ms / 5;
+        assert!(
+            probes as u64 * steps <= max_states as u64,
+            "{horizon_ms} ms: {probes} drives of {steps} periods"
+        );
+        if horizon_ms == 1200 {
+            assert!(probes > 0, "a short horizon probes");
+        }
+    }
+}
