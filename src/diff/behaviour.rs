@@ -369,6 +369,9 @@ pub struct MatrixDiff {
     pub bound_hit: bool,
     /// A search of either revision left cells unresolved (unconfirmed candidates).
     pub unresolved: bool,
+    /// Rows that a search of either revision stopped short of closing: only their verdicts
+    /// are compared.
+    pub verdicts_only: usize,
 }
 
 fn ms(t: Option<Time>) -> String {
@@ -419,6 +422,20 @@ fn row_cells(
     c
 }
 
+/// The columns of figures a search takes over the part of the space it searched (the rest
+/// are verdicts).
+const FIGURES: [&str; 5] = [
+    "detected by",
+    "worst detection",
+    "ends in",
+    "to safe",
+    "worst excess",
+];
+
+fn is_figure(c: &Cell) -> bool {
+    FIGURES.contains(&c.0.as_str())
+}
+
 /// Whether two cells of a column differ. A figure taken over merged states is an estimate
 /// within the resolution (a merged state stands for its first visitor, up to a resolution
 /// away), so two figures closer than that are not told apart.
@@ -437,18 +454,32 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
     let nf = |f: usize| names.new_fault(f);
     let nm = |m: usize| names.new_mode(m);
     let resolution = po.config.resolution.max(pn.config.resolution);
-    let old_rows: Vec<(String, Vec<Cell>)> = po
+    // Per row: its fault, its cells, and whether its search closed.
+    let old_rows: Vec<(String, Vec<Cell>, bool)> = po
         .rows
         .iter()
-        .map(|r| (r.describe(names.old), row_cells(names.old, po, r, &of, &om)))
+        .map(|r| {
+            (
+                r.describe(names.old),
+                row_cells(names.old, po, r, &of, &om),
+                r.result.searched_to.is_none(),
+            )
+        })
         .collect();
-    let new_rows: Vec<(String, Vec<Cell>)> = pn
+    let new_rows: Vec<(String, Vec<Cell>, bool)> = pn
         .rows
         .iter()
-        .map(|r| (r.describe(names.new), row_cells(names.new, pn, r, &nf, &nm)))
+        .map(|r| {
+            (
+                r.describe(names.new),
+                row_cells(names.new, pn, r, &nf, &nm),
+                r.result.searched_to.is_none(),
+            )
+        })
         .collect();
     let mut changed = Vec::new();
-    for (fault, oc) in &old_rows {
+    let mut verdicts_only = 0;
+    for (fault, oc, o_closed) in &old_rows {
         match new_rows.iter().find(|x| &x.0 == fault) {
             None => changed.push(RowChange {
                 fault: fault.clone(),
@@ -456,10 +487,17 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
                 in_new: false,
                 cells: Vec::new(),
             }),
-            Some((_, nc)) => {
+            Some((_, nc, n_closed)) => {
                 let mut cells = Vec::new();
-                for o in oc {
-                    let n = nc.iter().find(|x| x.0 == o.0);
+                // A search stopped short of closing (the bound, or every requirement already
+                // violated) took its figures over the part it searched, which moves with the
+                // state space: only the verdicts of such a row are compared.
+                let figures = *o_closed && *n_closed;
+                verdicts_only += usize::from(!figures);
+                let oc: Vec<&Cell> = oc.iter().filter(|c| figures || !is_figure(c)).collect();
+                let nc: Vec<&Cell> = nc.iter().filter(|c| figures || !is_figure(c)).collect();
+                for o in oc.iter().copied() {
+                    let n = nc.iter().find(|x| x.0 == o.0).copied();
                     if differ(o, n, resolution) {
                         cells.push(CellChange {
                             column: o.0.clone(),
@@ -488,7 +526,7 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
             }
         }
     }
-    for (fault, _) in &new_rows {
+    for (fault, _, _) in &new_rows {
         if !old_rows.iter().any(|x| &x.0 == fault) {
             changed.push(RowChange {
                 fault: fault.clone(),
@@ -508,6 +546,7 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
         changed,
         bound_hit: po.bound_hit() || pn.bound_hit(),
         unresolved: po.unresolved() || pn.unresolved(),
+        verdicts_only,
     }
 }
 
@@ -527,6 +566,51 @@ mod tests {
         assert!(differ(&text("shutdown"), Some(&text("idle_only")), 10.0));
         assert!(!differ(&text("shutdown"), Some(&text("shutdown")), 10.0));
         assert!(differ(&fig(3.0), None, 10.0));
+    }
+
+    /// A row that one search closed and the other stopped at its bound is compared by its
+    /// verdicts only: the bounded search saw a few periods after the injection, so its
+    /// figures (no monitor has tripped yet, say) are not the policy's.
+    #[test]
+    fn rows_stopped_short_compare_only_their_verdicts() {
+        let Ok(m) = crate::model::lower(VAN) else {
+            panic!("fixture does not lower");
+        };
+        let run = |max_states: usize| {
+            let cfg = crate::prove::Config {
+                only: Some("pedal.a open".into()),
+                max_states,
+                jobs: 1,
+                ..crate::prove::Config::default()
+            };
+            let Ok(p) = crate::prove::prove(&m, &cfg, &|_, _, _| {}) else {
+                panic!("the van's actuator is usable");
+            };
+            p
+        };
+        let (closed, bounded) = (run(10_000_000), run(30_000));
+        assert_eq!(closed.rows[0].result.searched_to, None);
+        assert!(bounded.rows[0].result.truncated);
+        // The figures differ: the bounded search stopped before the range check tripped.
+        assert_ne!(
+            closed.rows[0].result.monitors,
+            bounded.rows[0].result.monitors
+        );
+        let st = crate::diff::structure::compare(&m, &m);
+        let names = Names {
+            old: &m,
+            new: &m,
+            fault_map: &st.fault_map,
+            mode_map: &st.mode_map,
+        };
+        let d = matrices(&closed, &bounded, &names);
+        assert_eq!(d.verdicts_only, 1);
+        assert_eq!(d.changed.len(), 1, "{:?}", d.changed);
+        for c in &d.changed[0].cells {
+            assert!(!FIGURES.contains(&c.column.as_str()), "{c:?}");
+            assert_eq!(c.new, "?", "{c:?}");
+        }
+        assert_eq!(matrices(&closed, &closed, &names).verdicts_only, 0);
     }
 
     #[test]

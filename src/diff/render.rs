@@ -12,6 +12,14 @@ use std::fmt::Write;
 const CAUTION: &str = "limpet is a design aid, not a substitute for a safety case, vehicle testing, or regulations and licensed engineering judgment.";
 
 const BOUND: &str = "a search hit its state bound: cells marked `?` are not verdicts; run `limpet prove` on each revision for a full search";
+/// The note on rows compared by their verdicts only.
+fn verdicts_only(n: usize) -> String {
+    format!(
+        "{} that a search stopped short of closing (the bound, or every requirement already violated) compare only their verdicts: their figures cover only the part searched (column `searched` of `limpet prove`)",
+        plural(n, "row", "rows")
+    )
+}
+
 const UNRESOLVED: &str = "cells marked `unresolved` met candidate violations that no exact replay confirmed: they are not verdicts (a finer --resolution may decide them)";
 
 fn plural(n: usize, one: &str, many: &str) -> String {
@@ -190,6 +198,9 @@ pub fn text(r: &Report) -> String {
         if m.unresolved {
             let _ = writeln!(o, "  {UNRESOLVED}");
         }
+        if m.verdicts_only > 0 {
+            let _ = writeln!(o, "  {}", verdicts_only(m.verdicts_only));
+        }
         for row in &m.changed {
             match (row.in_old, row.in_new) {
                 (true, false) => {
@@ -350,6 +361,9 @@ pub fn markdown(r: &Report) -> String {
         }
         if m.unresolved {
             let _ = writeln!(o, "{UNRESOLVED}\n");
+        }
+        if m.verdicts_only > 0 {
+            let _ = writeln!(o, "{}\n", verdicts_only(m.verdicts_only));
         }
         if m.changed.is_empty() {
             let _ = writeln!(o, "All {} are the same.", plural(m.rows, "row", "rows"));
