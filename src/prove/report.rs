@@ -259,6 +259,65 @@ pub fn stories(m: &Model, p: &Proof) -> String {
     o
 }
 
+/// The limit a requirement's nearest approach is measured against (see
+/// [`super::search::FaultResult::nearest`]), and the unit both are in.
+fn limit(m: &Model, r: &super::Requirement) -> (f64, &'static str) {
+    match *r {
+        super::Requirement::Excess { steps, .. } => {
+            (Time(m.period.0 * u64::from(steps)).as_ms_f64(), "ms")
+        }
+        super::Requirement::Never { above, .. } => (above, "%"),
+        super::Requirement::Idle { idle, .. } => (idle, "%"),
+    }
+}
+
+/// How near the exact replays came to breaking requirement `ri` of a row, against its limit:
+/// `89.97 % (limit 90 %)`, or a dash when no replay met the requirement's condition.
+pub fn nearest(m: &Model, p: &Proof, row: &Row, ri: usize) -> String {
+    let near = row.result.nearest.get(ri).copied();
+    match near.filter(|x| x.is_finite()) {
+        None => "-".into(),
+        Some(x) => {
+            let (lim, unit) = limit(m, &p.requirements[ri]);
+            let d = if unit == "ms" {
+                0
+            } else {
+                telling_digits(x, lim)
+            };
+            format!("{x:.d$} {unit} (limit {} {unit})", trim(lim))
+        }
+    }
+}
+
+/// The unresolved cells, one line per row: how many candidates each met, and how near the
+/// exact replays came. Empty when there are none.
+pub fn unresolved(m: &Model, p: &Proof) -> String {
+    let mut o = String::new();
+    for row in &p.rows {
+        let cells: Vec<String> = (0..p.requirements.len())
+            .filter(|&ri| row.verdict(ri) == super::Verdict::Unresolved)
+            .map(|ri| {
+                format!(
+                    "{} {} candidate(s), nearest replay {}",
+                    p.requirements[ri].short(),
+                    row.result.unconfirmed[ri],
+                    nearest(m, p, row, ri)
+                )
+            })
+            .collect();
+        if !cells.is_empty() {
+            let _ = writeln!(o, "  {}: {}", row.describe(m), cells.join("; "));
+        }
+    }
+    if o.is_empty() {
+        o
+    } else {
+        format!(
+            "unresolved cells: candidates no exact replay confirmed, and the nearest an exact replay of this fault came to breaking the requirement (the highest opening where it applies, or the longest excess)\n{o}"
+        )
+    }
+}
+
 /// Enough decimals (2 to 6) to tell `a` from `b` in print: a plate settling onto its bound
 /// from above breaks it by less than a hundredth of a percent.
 fn telling_digits(a: f64, b: f64) -> usize {
@@ -283,6 +342,11 @@ pub fn text(m: &Model, p: &Proof) -> String {
     let st = stories(m, p);
     if !st.is_empty() {
         o.push_str(&st);
+        o.push('\n');
+    }
+    let un = unresolved(m, p);
+    if !un.is_empty() {
+        o.push_str(&un);
         o.push('\n');
     }
     o.push_str(&summary(m, p));
@@ -420,6 +484,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
                 "settled_branches": r.settled,
                 "verdicts": verdicts(p, row),
                 "unconfirmed_candidates": r.unconfirmed,
+                "nearest_replay": r.nearest.iter().map(|&x| x.is_finite().then(|| crate::sim::trace::round6(x))).collect::<Vec<_>>(),
                 "violations": r.violations.iter().map(|v| serde_json::json!({
                     "requirement": p.requirements[v.requirement].text(m),
                     "at": v.at.as_secs_f64(),

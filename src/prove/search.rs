@@ -496,6 +496,13 @@ pub struct FaultResult {
     /// without a confirmed violation but with candidates is unresolved at the resolution
     /// (see [`super::Verdict::Unresolved`]), not held.
     pub unconfirmed: Vec<usize>,
+    /// Per requirement, how near the exact replays that did not break it came (the probes'
+    /// drives and the candidates' paths): the highest opening where the requirement applies
+    /// for a ceiling or idle requirement (in %), the longest excess above the limit for an
+    /// excess requirement (in ms); `NEG_INFINITY` when no replay met its condition. It is
+    /// a fact about the drives replayed, not a bound on the rest: where a cell is unresolved
+    /// it tells how close the merged states' candidates really came.
+    pub nearest: Vec<f64>,
     /// Every requirement was found violated (and confirmed) before the state space was
     /// exhausted, so the search ended there: the verdicts are final, the figures cover the
     /// part explored.
@@ -532,17 +539,36 @@ pub fn confirm(
     ri: usize,
     r: &Req,
 ) -> Option<Violation> {
-    let mut v = replay_check(
-        vehicle,
+    confirm_nearest(vehicle, inj, pedal, inject_step, second_step, ri, r).ok()
+}
+
+/// [`confirm`], or when the path does not break the requirement, how near it came (see
+/// [`FaultResult::nearest`]).
+pub fn confirm_nearest(
+    vehicle: &Vehicle,
+    inj: &[Injection],
+    pedal: &[f64],
+    inject_step: u32,
+    second_step: Option<u32>,
+    ri: usize,
+    r: &Req,
+) -> Result<Violation, f64> {
+    if inject_step as usize > pedal.len() {
+        return Err(f64::NEG_INFINITY);
+    }
+    let (mut out, near) = Prefix::drive(vehicle, &pedal[..inject_step as usize]).replay_nearest(
         inj,
         pedal,
-        inject_step,
         second_step,
         std::slice::from_ref(r),
-    )
-    .pop()??;
-    v.requirement = ri;
-    Some(v)
+    );
+    match out.pop().flatten() {
+        Some(mut v) => {
+            v.requirement = ri;
+            Ok(v)
+        }
+        None => Err(near[0]),
+    }
 }
 
 /// Replays a pedal path exactly beside the fault-free vehicle and returns, per requirement,
@@ -617,6 +643,19 @@ impl<'v> Prefix<'v> {
         second_step: Option<u32>,
         reqs: &[Req],
     ) -> Vec<Option<Violation>> {
+        self.replay_nearest(inj, pedal, second_step, reqs).0
+    }
+
+    /// [`Prefix::replay`], and per requirement how near the path came to breaking it before
+    /// it did (or at all, when it did not), in the requirement's own measure (see
+    /// [`FaultResult::nearest`]); `NEG_INFINITY` when the path never met its condition.
+    pub fn replay_nearest(
+        &self,
+        inj: &[Injection],
+        pedal: &[f64],
+        second_step: Option<u32>,
+        reqs: &[Req],
+    ) -> (Vec<Option<Violation>>, Vec<f64>) {
         let model = self.vehicle.ctl.model();
         let inject_step = self.steps;
         let period = model.period;
@@ -625,6 +664,8 @@ impl<'v> Prefix<'v> {
         let mut excess = vec![0u32; reqs.len()];
         let mut released = self.released;
         let mut out: Vec<Option<Violation>> = vec![None; reqs.len()];
+        let mut near = vec![f64::NEG_INFINITY; reqs.len()];
+        let ms = period.as_ms_f64();
         for (k, &p) in pedal.iter().enumerate().skip(inject_step as usize) {
             let now = Time(period.0 * k as u64);
             for (n, i) in inj.iter().enumerate() {
@@ -645,7 +686,7 @@ impl<'v> Prefix<'v> {
                 if out[ri].is_some() {
                     continue;
                 }
-                let hit = match *r {
+                let (hit, measure) = match *r {
                     Req::Excess { limit, steps } => {
                         let base = open_n.max(model.actuator.default);
                         excess[ri] = if open - base > limit {
@@ -653,17 +694,27 @@ impl<'v> Prefix<'v> {
                         } else {
                             0
                         };
-                        (excess[ri] > steps).then_some(base + limit)
+                        let m = (excess[ri] > 0).then(|| f64::from(excess[ri]) * ms);
+                        ((excess[ri] > steps).then_some(base + limit), m)
                     }
                     Req::Never {
                         above,
                         unless_driver,
-                    } => (unless_driver.is_none_or(|y| p <= y) && open > above && open_n <= above)
-                        .then_some(above),
+                    } => {
+                        let m = (unless_driver.is_none_or(|y| p <= y) && open_n <= above)
+                            .then_some(open);
+                        (m.filter(|&o| o > above).map(|_| above), m)
+                    }
                     Req::Idle { idle, steps } => {
-                        (released >= steps && open > idle && open_n <= idle).then_some(idle)
+                        let m = (released >= steps && open_n <= idle).then_some(open);
+                        (m.filter(|&o| o > idle).map(|_| idle), m)
                     }
                 };
+                if hit.is_none()
+                    && let Some(m) = measure
+                {
+                    near[ri] = near[ri].max(m);
+                }
                 if let Some(bound) = hit {
                     out[ri] = Some(Violation {
                         requirement: ri,
@@ -680,7 +731,7 @@ impl<'v> Prefix<'v> {
                 break;
             }
         }
-        out
+        (out, near)
     }
 }
 
@@ -729,13 +780,15 @@ pub fn probe(
                 }
                 path.push(p);
             }
-            for (ri, v) in start.replay(inj, &path, None, reqs).into_iter().enumerate() {
+            let (out, near) = start.replay_nearest(inj, &path, None, reqs);
+            for (ri, v) in out.into_iter().enumerate() {
                 if let Some(v) = v
                     && !found[ri]
                 {
                     found[ri] = true;
                     res.violations.push(v);
                 }
+                res.nearest[ri] = res.nearest[ri].max(near[ri]);
             }
         }
     }
@@ -951,6 +1004,7 @@ pub fn search_fault<'v>(
     let mut res = FaultResult {
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         unconfirmed: vec![0; reqs.len()],
+        nearest: vec![f64::NEG_INFINITY; reqs.len()],
         ..FaultResult::default()
     };
     // The lone futures of vehicles the driver no longer steers (see `LoneWalks`), each
@@ -1181,17 +1235,28 @@ pub fn search_fault<'v>(
                                     .pop()
                                     .flatten()
                                     .is_some();
-                            let confirmed = if screened {
-                                confirm(vehicle, inj, &pedal, inject_step, second_step, ri, r)
-                            } else {
-                                None
-                            };
-                            if let Some(v) = confirmed {
-                                found[ri] = true;
-                                watch = Watch::open(reqs, &found);
-                                res.violations.push(v);
-                            } else {
-                                res.unconfirmed[ri] += 1;
+                            let replayed = screened.then(|| {
+                                confirm_nearest(
+                                    vehicle,
+                                    inj,
+                                    &pedal,
+                                    inject_step,
+                                    second_step,
+                                    ri,
+                                    r,
+                                )
+                            });
+                            match replayed {
+                                Some(Ok(v)) => {
+                                    found[ri] = true;
+                                    watch = Watch::open(reqs, &found);
+                                    res.violations.push(v);
+                                }
+                                Some(Err(near)) => {
+                                    res.nearest[ri] = res.nearest[ri].max(near);
+                                    res.unconfirmed[ri] += 1;
+                                }
+                                None => res.unconfirmed[ri] += 1,
                             }
                         }
                     }

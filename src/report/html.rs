@@ -245,16 +245,23 @@ impl Page<'_> {
             for ri in 0..p.requirements.len() {
                 let (class, text) = match row.verdict(ri) {
                     crate::prove::Verdict::Violated if row.uncorrectable => {
-                        ("violated", "VIOLATED (uncorrectable)")
+                        ("violated", "VIOLATED (uncorrectable)".to_string())
                     }
-                    crate::prove::Verdict::Violated => ("violated", "VIOLATED"),
-                    crate::prove::Verdict::Inconclusive => ("inconclusive", "? (bound hit)"),
-                    crate::prove::Verdict::Unresolved => {
-                        ("inconclusive", "unresolved (unconfirmed candidates)")
+                    crate::prove::Verdict::Violated => ("violated", "VIOLATED".to_string()),
+                    crate::prove::Verdict::Inconclusive => {
+                        ("inconclusive", "? (bound hit)".to_string())
                     }
-                    crate::prove::Verdict::Holds => ("holds", "ok"),
+                    crate::prove::Verdict::Unresolved => (
+                        "inconclusive",
+                        format!(
+                            "unresolved ({} unconfirmed candidates; nearest exact replay {})",
+                            r.unconfirmed[ri],
+                            crate::prove::report::nearest(m, p, row, ri)
+                        ),
+                    ),
+                    crate::prove::Verdict::Holds => ("holds", "ok".to_string()),
                 };
-                let _ = write!(o, "<td class=\"{class}\">{text}</td>");
+                let _ = write!(o, "<td class=\"{class}\">{}</td>", esc(&text));
             }
             o.push_str("</tr>\n");
         }

@@ -222,6 +222,18 @@ fn a_fault_that_prove_passes_survives_a_random_campaign() {
             && summary.contains("unresolved: 1 cell(s) met"),
         "{summary}"
     );
+    // The unresolved cell says how near the exact replays came: under the ceiling, since
+    // none broke it.
+    let near = row.result.nearest[1];
+    assert!(near.is_finite() && near <= 90.0, "{near}");
+    let listed = prove::report::unresolved(&m, &proof);
+    assert!(
+        listed.contains(&format!(
+            "throttle.a open: ceiling {} candidate(s), nearest replay ",
+            row.result.unconfirmed[1]
+        )) && listed.contains("(limit 90 %)"),
+        "{listed}"
+    );
     let vehicle = Vehicle::new(&m).expect("plant derives");
     let grid = search::grid(&cfg);
     let horizon = (cfg.horizon.0 / m.period.0) as usize;
@@ -475,4 +487,83 @@ fn probes_stay_within_the_bound() {
             assert!(probes > 0, "a short horizon probes");
         }
     }
+}
+
+/// How near a replay came to breaking a requirement, against the vehicle stepped here on its
+/// own: the faulty van (a feedback track at 94.67 % gain, the worst the disagreement check
+/// lets through) and its fault-free twin driven from the ceiling counterexample's injection
+/// through a hold at 88 %, a hold at 60 % and a release. The ceiling's measure is the highest
+/// faulty opening at the steps where the driver is at or below 90 % and the twin at or below
+/// 90 % (the requirement's own condition, from the assure block); the excess measure the
+/// longest run above the fault-free opening (or the springs' default) plus 5 %, in ms; the
+/// idle measure the highest opening 1 s or more after release with the twin at idle (common
+/// practice, no source).
+#[test]
+fn the_nearest_approach_is_the_requirements_own_measure_along_the_drive() {
+    use limpet::sim::system::System;
+    let m = load("scenarios/van/van_throttle.limp");
+    let cfg = Config {
+        max_states: 10_000_000,
+        jobs: 1,
+        only: Some("throttle.b gain 94.67".into()),
+        ..Config::default()
+    };
+    let p = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
+    let row = &p.rows[0];
+    let v = row
+        .result
+        .violations
+        .iter()
+        .find(|v| v.requirement == 1)
+        .expect("the ceiling is violated");
+    let inject = v.inject_step as usize;
+    let mut path = v.pedal[..inject].to_vec();
+    path.extend([88.0; 100].iter().chain(&[60.0; 100]).chain(&[0.0; 300]));
+    let vehicle = Vehicle::new(&m).expect("plant derives");
+    let start = search::Prefix::drive(&vehicle, &path[..inject]);
+    let (out, near) = start.replay_nearest(&row.faults, &path, None, &p.requirements);
+    assert!(out.iter().all(Option::is_none), "{out:?}");
+
+    // The same drive, stepped here.
+    let (mut faulty, mut twin) = (System::new(&vehicle), System::new(&vehicle));
+    let (mut ceiling, mut idle) = (f64::NEG_INFINITY, f64::NEG_INFINITY);
+    let (mut run, mut longest, mut released) = (0u32, 0u32, 0u32);
+    for (k, &pedal) in path.iter().enumerate() {
+        let now = Time(m.period.0 * k as u64);
+        if k == inject {
+            faulty.inject(row.faults[0], now);
+        }
+        search::period_step(&mut faulty, &m, pedal, now);
+        search::period_step(&mut twin, &m, pedal, now);
+        released = if pedal == 0.0 { released + 1 } else { 0 };
+        if k < inject {
+            continue;
+        }
+        let (open, open_n) = (faulty.opening(), twin.opening());
+        if pedal <= 90.0 && open_n <= 90.0 {
+            ceiling = ceiling.max(open);
+        }
+        run = if open - open_n.max(m.actuator.default) > 5.0 {
+            run + 1
+        } else {
+            0
+        };
+        longest = longest.max(run);
+        if released >= 200 && open_n <= m.actuator.idle {
+            idle = idle.max(open);
+        }
+    }
+    assert!(ceiling > 87.0 && ceiling <= 90.0, "{ceiling}");
+    assert_eq!(near[1], ceiling);
+    let excess = f64::from(longest) * m.period.as_ms_f64();
+    assert_eq!(
+        near[0],
+        if longest > 0 {
+            excess
+        } else {
+            f64::NEG_INFINITY
+        }
+    );
+    assert!(idle.is_finite(), "the drive ends 1.5 s after release");
+    assert_eq!(near[2], idle);
 }
