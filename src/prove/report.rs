@@ -12,25 +12,25 @@ fn ms(t: Option<Time>) -> String {
     t.map_or("-".into(), |t| format!("{} ms", trim(t.as_ms_f64())))
 }
 
-fn names(m: &Model, fs: &[usize]) -> String {
+fn names(m: &Model, fs: &[usize], sep: &str) -> String {
     if fs.is_empty() {
         "-".into()
     } else {
         fs.iter()
             .map(|&f| m.faults[f].name.as_str())
             .collect::<Vec<_>>()
-            .join(",")
+            .join(sep)
     }
 }
 
-fn mode_names(m: &Model, ms: &[usize]) -> String {
+fn mode_names(m: &Model, ms: &[usize], sep: &str) -> String {
     if ms.is_empty() {
         "-".into()
     } else {
         ms.iter()
             .map(|&x| m.modes[x].name.as_str())
             .collect::<Vec<_>>()
-            .join(",")
+            .join(sep)
     }
 }
 
@@ -77,20 +77,20 @@ pub fn verdicts(p: &Proof, row: &Row) -> Vec<&'static str> {
         .collect()
 }
 
-/// The cells of one matrix row, in column order.
-fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
+/// The cells of one matrix row under [`COLUMNS`], lists of names joined by `sep`.
+pub fn figures(m: &Model, row: &Row, sep: &str) -> Vec<String> {
     let r = &row.result;
-    let mut c = vec![
+    vec![
         row.describe(m),
         searched(m, r),
         if row.faults.len() == 1 {
-            names(m, &row.seen_by)
+            names(m, &row.seen_by, sep)
         } else {
             "".into()
         },
-        names(m, &r.monitors),
+        names(m, &r.monitors, sep),
         detection(r),
-        mode_names(m, &r.end_modes),
+        mode_names(m, &r.end_modes, sep),
         ms(r.to_safe),
         format!(
             "{:.1} % / {}",
@@ -99,7 +99,12 @@ fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
         ),
         format!("{:.1} %", r.worst_opening_below_ceiling),
         ms(Some(r.worst_idle_after_release)),
-    ];
+    ]
+}
+
+/// The cells of one matrix row, in column order: [`figures`], then the verdicts.
+fn cells(m: &Model, p: &Proof, row: &Row) -> Vec<String> {
+    let mut c = figures(m, row, ",");
     c.extend(verdicts(p, row).into_iter().map(String::from));
     c
 }

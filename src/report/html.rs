@@ -191,53 +191,9 @@ impl Page<'_> {
             let _ = write!(o, "<th>{}</th>", esc(h));
         }
         o.push_str("</tr>\n");
-        let names = |fs: &[usize]| -> String {
-            if fs.is_empty() {
-                "-".into()
-            } else {
-                fs.iter()
-                    .filter_map(|&f| m.faults.get(f).map(|x| x.name.as_str()))
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            }
-        };
-        let ms = |t: Option<crate::time::Time>| {
-            t.map_or("-".into(), |t| {
-                format!("{} ms", crate::time::trim(t.as_ms_f64()))
-            })
-        };
         for row in &p.rows {
             let r = &row.result;
-            let fault = row.describe(m);
-            let modes = if r.end_modes.is_empty() {
-                "-".into()
-            } else {
-                r.end_modes
-                    .iter()
-                    .filter_map(|&x| m.modes.get(x).map(|md| md.name.as_str()))
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            };
-            let cells = [
-                fault,
-                crate::prove::report::searched(m, r),
-                if row.faults.len() == 1 {
-                    names(&row.seen_by)
-                } else {
-                    String::new()
-                },
-                names(&r.monitors),
-                crate::prove::report::detection(r),
-                modes,
-                ms(r.to_safe),
-                format!(
-                    "{:.1} % / {}",
-                    r.worst_excess.max(0.0),
-                    ms(Some(r.worst_excess_duration))
-                ),
-                format!("{:.1} %", r.worst_opening_below_ceiling),
-                ms(Some(r.worst_idle_after_release)),
-            ];
+            let cells = crate::prove::report::figures(m, row, ", ");
             o.push_str("<tr>");
             for c in &cells {
                 let _ = write!(o, "<td>{}</td>", esc(c));
