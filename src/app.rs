@@ -461,8 +461,34 @@ pub fn prove(path: &str, cfg: &ProveConfig) -> Outcome {
                 }
             }
         }
+        // The drives that came nearest where a cell is unresolved: what a reviewer replays
+        // first to judge it.
+        let mut near = 0;
+        for (ri, row) in proof.rows.iter().enumerate() {
+            for (qi, req) in proof.requirements.iter().enumerate() {
+                let Some(nm) = row.result.nearest.get(qi).and_then(Option::as_ref) else {
+                    continue;
+                };
+                if row.verdict(qi) != crate::prove::Verdict::Unresolved {
+                    continue;
+                }
+                near += 1;
+                let name = format!("near{:03}_{}", ri + 1, req.short());
+                let text =
+                    crate::prove::report::near_script(&m, &proof, row, qi, nm, &name, &policy_rel);
+                let file = dirp.join(format!("{name}.scenario"));
+                if let Err(e) = write_atomically(&file, &text) {
+                    return Outcome::bad_input(format!(
+                        "error: cannot write `{}`: {e}\n",
+                        file.display()
+                    ));
+                }
+            }
+        }
         if cfg.format == Format::Text {
-            stdout.push_str(&format!("{n} counterexample script(s) written to {dir}\n"));
+            stdout.push_str(&format!(
+                "{n} counterexample script(s) and {near} near-miss script(s) (unresolved cells) written to {dir}\n"
+            ));
         }
     }
     let exit = if proof.violated() {

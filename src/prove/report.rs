@@ -279,8 +279,13 @@ fn limit(m: &Model, r: &super::Requirement) -> (f64, &'static str) {
 /// How near the exact replays came to breaking requirement `ri` of a row, against its limit:
 /// `89.97 % (limit 90 %)`, or a dash when no replay met the requirement's condition.
 pub fn nearest(m: &Model, p: &Proof, row: &Row, ri: usize) -> String {
-    let near = row.result.nearest.get(ri).copied();
-    match near.filter(|x| x.is_finite()) {
+    let near = row
+        .result
+        .nearest
+        .get(ri)
+        .and_then(|n| n.as_ref())
+        .map(|n| n.value);
+    match near {
         None => "-".into(),
         Some(x) => {
             let (lim, unit) = limit(m, &p.requirements[ri]);
@@ -489,7 +494,7 @@ pub fn json(m: &Model, p: &Proof) -> String {
                 "settled_branches": r.settled,
                 "verdicts": verdicts(p, row),
                 "unconfirmed_candidates": r.unconfirmed,
-                "nearest_replay": r.nearest.iter().map(|&x| x.is_finite().then(|| crate::sim::trace::round6(x))).collect::<Vec<_>>(),
+                "nearest_replay": r.nearest.iter().map(|n| n.as_ref().map(|n| crate::sim::trace::round6(n.value))).collect::<Vec<_>>(),
                 "violations": r.violations.iter().map(|v| serde_json::json!({
                     "requirement": p.requirements[v.requirement].text(m),
                     "at": v.at.as_secs_f64(),
@@ -536,32 +541,17 @@ pub fn script(
         "# Counterexample from limpet prove: {} breaks `{req}`.",
         row.describe(m)
     );
-    let _ = writeln!(
-        o,
-        "# The driver's pedal moves on the prover's grid, one value per controller period."
+    drive(
+        m,
+        row,
+        &v.pedal,
+        v.inject_step,
+        v.second_step,
+        name,
+        policy_path,
+        v.at,
+        &mut o,
     );
-    let _ = writeln!(o, "scenario {name} {{");
-    let _ = writeln!(o, "  policy \"{policy_path}\"");
-    let _ = writeln!(o, "  length {}", v.at + m.period);
-    let _ = writeln!(o);
-    let mut last: Option<f64> = None;
-    for (k, &pedal) in v.pedal.iter().enumerate() {
-        let at = Time(m.period.0 * k as u64);
-        for (n, inj) in row.faults.iter().enumerate() {
-            let step = match (n, v.second_step) {
-                (0, _) | (_, None) => v.inject_step,
-                (_, Some(s)) => s,
-            };
-            if k == step as usize {
-                let _ = writeln!(o, "  at {:<9} break {}", at.to_string(), describe(m, inj));
-            }
-        }
-        if last != Some(pedal) {
-            let _ = writeln!(o, "  at {:<9} pedal {} %", at.to_string(), trim(pedal));
-            last = Some(pedal);
-        }
-    }
-    let _ = writeln!(o);
     // The bound, rounded towards the side the opening broke it on, so the replay fails there.
     let x = (v.bound * 100.0).floor() / 100.0;
     let _ = writeln!(
@@ -573,6 +563,103 @@ pub fn script(
     );
     let _ = writeln!(o, "}}");
     o
+}
+
+/// The drive that came nearest to breaking requirement `ri` of a row without breaking it
+/// (see [`super::search::FaultResult::nearest`]), as a script for `limpet run`: a reviewer
+/// replays it to see how close an unresolved cell's exact replays came. Its expectation holds:
+/// the opening at that instant, rounded up to a hundredth.
+#[allow(clippy::too_many_arguments)]
+pub fn near_script(
+    m: &Model,
+    p: &Proof,
+    row: &Row,
+    ri: usize,
+    near: &super::search::NearMiss,
+    name: &str,
+    policy_path: &str,
+) -> String {
+    let req = &p.requirements[ri];
+    let mut o = String::new();
+    let _ = writeln!(
+        o,
+        "# Near miss from limpet prove: {} comes within reach of `{}` without breaking it.",
+        row.describe(m),
+        req.text(m)
+    );
+    let _ = writeln!(
+        o,
+        "# {}: {} at {}, against the fault-free vehicle driven the same way.",
+        match req {
+            super::Requirement::Excess { .. } => "longest excess",
+            _ => "highest opening where it applies",
+        },
+        nearest(m, p, row, ri),
+        near.at
+    );
+    drive(
+        m,
+        row,
+        &near.pedal,
+        near.inject_step,
+        near.second_step,
+        name,
+        policy_path,
+        near.at,
+        &mut o,
+    );
+    let x = (near.opening * 100.0).ceil() / 100.0;
+    let _ = writeln!(
+        o,
+        "  expect opening at most {} % from {} to {}",
+        trim(x),
+        near.at,
+        near.at
+    );
+    let _ = writeln!(o, "}}");
+    o
+}
+
+/// A script's header and drive: the pedal, one grid value per controller period, and the
+/// faults' `break`s at their steps, up to `end`.
+#[allow(clippy::too_many_arguments)]
+fn drive(
+    m: &Model,
+    row: &Row,
+    pedal: &[f64],
+    inject_step: u32,
+    second_step: Option<u32>,
+    name: &str,
+    policy_path: &str,
+    end: Time,
+    o: &mut String,
+) {
+    let _ = writeln!(
+        o,
+        "# The driver's pedal moves on the prover's grid, one value per controller period."
+    );
+    let _ = writeln!(o, "scenario {name} {{");
+    let _ = writeln!(o, "  policy \"{policy_path}\"");
+    let _ = writeln!(o, "  length {}", end + m.period);
+    let _ = writeln!(o);
+    let mut last: Option<f64> = None;
+    for (k, &p) in pedal.iter().enumerate() {
+        let at = Time(m.period.0 * k as u64);
+        for (n, inj) in row.faults.iter().enumerate() {
+            let step = match (n, second_step) {
+                (0, _) | (_, None) => inject_step,
+                (_, Some(s)) => s,
+            };
+            if k == step as usize {
+                let _ = writeln!(o, "  at {:<9} break {}", at.to_string(), describe(m, inj));
+            }
+        }
+        if last != Some(p) {
+            let _ = writeln!(o, "  at {:<9} pedal {} %", at.to_string(), trim(p));
+            last = Some(p);
+        }
+    }
+    let _ = writeln!(o);
 }
 
 #[cfg(test)]

@@ -499,10 +499,11 @@ pub struct FaultResult {
     /// Per requirement, how near the exact replays that did not break it came (the probes'
     /// drives and the candidates' paths): the highest opening where the requirement applies
     /// for a ceiling or idle requirement (in %), the longest excess above the limit for an
-    /// excess requirement (in ms); `NEG_INFINITY` when no replay met its condition. It is
-    /// a fact about the drives replayed, not a bound on the rest: where a cell is unresolved
-    /// it tells how close the merged states' candidates really came.
-    pub nearest: Vec<f64>,
+    /// excess requirement (in ms), with the drive that came nearest; `None` when no replay
+    /// met its condition. It is a fact about the drives replayed, not a bound on the rest:
+    /// where a cell is unresolved it tells how close the merged states' candidates really
+    /// came.
+    pub nearest: Vec<Option<NearMiss>>,
     /// Every requirement was found violated (and confirmed) before the state space was
     /// exhausted, so the search ended there: the verdicts are final, the figures cover the
     /// part explored.
@@ -519,6 +520,64 @@ pub struct FaultResult {
     pub settled: usize,
     /// Nodes of the faulty vehicle's own graph (each stepped once per action).
     pub faulty_states: usize,
+}
+
+/// How near one replayed drive came to breaking a requirement (see
+/// [`FaultResult::nearest`]): the measure, the step (index into the drive) it peaked at, and
+/// the opening and the bound there.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Near {
+    pub value: f64,
+    pub step: usize,
+    pub opening: f64,
+    pub bound: f64,
+}
+
+impl Near {
+    /// No step met the requirement's condition.
+    pub const NONE: Near = Near {
+        value: f64::NEG_INFINITY,
+        step: 0,
+        opening: 0.0,
+        bound: 0.0,
+    };
+}
+
+/// The drive that came nearest to breaking a requirement without breaking it, from key on to
+/// the step it came nearest at, ready to be written as a script.
+#[derive(Clone, Debug, PartialEq)]
+pub struct NearMiss {
+    /// The measure (see [`FaultResult::nearest`]).
+    pub value: f64,
+    pub pedal: Vec<f64>,
+    pub inject_step: u32,
+    pub second_step: Option<u32>,
+    /// The end of the step it came nearest at.
+    pub at: Time,
+    pub opening: f64,
+    pub bound: f64,
+}
+
+/// Keeps `near` in `slot` if it came nearer than what `slot` holds (the first of equals).
+fn keep_nearer(
+    slot: &mut Option<NearMiss>,
+    near: &Near,
+    pedal: &[f64],
+    inject_step: u32,
+    second_step: Option<u32>,
+    period: Time,
+) {
+    if near.value.is_finite() && slot.as_ref().is_none_or(|s| near.value > s.value) {
+        *slot = Some(NearMiss {
+            value: near.value,
+            pedal: pedal[..=near.step.min(pedal.len().saturating_sub(1))].to_vec(),
+            inject_step,
+            second_step,
+            at: Time(period.0 * (near.step as u64 + 1)),
+            opening: near.opening,
+            bound: near.bound,
+        });
+    }
 }
 
 /// How many candidate violations of one requirement are replayed from key on before the
@@ -552,9 +611,9 @@ pub fn confirm_nearest(
     second_step: Option<u32>,
     ri: usize,
     r: &Req,
-) -> Result<Violation, f64> {
+) -> Result<Violation, Near> {
     if inject_step as usize > pedal.len() {
-        return Err(f64::NEG_INFINITY);
+        return Err(Near::NONE);
     }
     let (mut out, near) = Prefix::drive(vehicle, &pedal[..inject_step as usize]).replay_nearest(
         inj,
@@ -648,14 +707,14 @@ impl<'v> Prefix<'v> {
 
     /// [`Prefix::replay`], and per requirement how near the path came to breaking it before
     /// it did (or at all, when it did not), in the requirement's own measure (see
-    /// [`FaultResult::nearest`]); `NEG_INFINITY` when the path never met its condition.
+    /// [`FaultResult::nearest`]); [`Near::NONE`] when the path never met its condition.
     pub fn replay_nearest(
         &self,
         inj: &[Injection],
         pedal: &[f64],
         second_step: Option<u32>,
         reqs: &[Req],
-    ) -> (Vec<Option<Violation>>, Vec<f64>) {
+    ) -> (Vec<Option<Violation>>, Vec<Near>) {
         let model = self.vehicle.ctl.model();
         let inject_step = self.steps;
         let period = model.period;
@@ -664,7 +723,7 @@ impl<'v> Prefix<'v> {
         let mut excess = vec![0u32; reqs.len()];
         let mut released = self.released;
         let mut out: Vec<Option<Violation>> = vec![None; reqs.len()];
-        let mut near = vec![f64::NEG_INFINITY; reqs.len()];
+        let mut near = vec![Near::NONE; reqs.len()];
         let ms = period.as_ms_f64();
         for (k, &p) in pedal.iter().enumerate().skip(inject_step as usize) {
             let now = Time(period.0 * k as u64);
@@ -686,7 +745,7 @@ impl<'v> Prefix<'v> {
                 if out[ri].is_some() {
                     continue;
                 }
-                let (hit, measure) = match *r {
+                let (hit, measure, bound) = match *r {
                     Req::Excess { limit, steps } => {
                         let base = open_n.max(model.actuator.default);
                         excess[ri] = if open - base > limit {
@@ -695,7 +754,7 @@ impl<'v> Prefix<'v> {
                             0
                         };
                         let m = (excess[ri] > 0).then(|| f64::from(excess[ri]) * ms);
-                        ((excess[ri] > steps).then_some(base + limit), m)
+                        ((excess[ri] > steps), m, base + limit)
                     }
                     Req::Never {
                         above,
@@ -703,17 +762,24 @@ impl<'v> Prefix<'v> {
                     } => {
                         let m = (unless_driver.is_none_or(|y| p <= y) && open_n <= above)
                             .then_some(open);
-                        (m.filter(|&o| o > above).map(|_| above), m)
+                        (m.is_some_and(|o| o > above), m, above)
                     }
                     Req::Idle { idle, steps } => {
                         let m = (released >= steps && open_n <= idle).then_some(open);
-                        (m.filter(|&o| o > idle).map(|_| idle), m)
+                        (m.is_some_and(|o| o > idle), m, idle)
                     }
                 };
+                let hit = hit.then_some(bound);
                 if hit.is_none()
                     && let Some(m) = measure
+                    && m > near[ri].value
                 {
-                    near[ri] = near[ri].max(m);
+                    near[ri] = Near {
+                        value: m,
+                        step: k,
+                        opening: open,
+                        bound,
+                    };
                 }
                 if let Some(bound) = hit {
                     out[ri] = Some(Violation {
@@ -788,7 +854,15 @@ pub fn probe(
                     found[ri] = true;
                     res.violations.push(v);
                 }
-                res.nearest[ri] = res.nearest[ri].max(near[ri]);
+                let inject = prefix.len() as u32;
+                keep_nearer(
+                    &mut res.nearest[ri],
+                    &near[ri],
+                    &path,
+                    inject,
+                    None,
+                    model.period,
+                );
             }
         }
     }
@@ -1004,7 +1078,7 @@ pub fn search_fault<'v>(
     let mut res = FaultResult {
         worst_opening_below_ceiling: f64::NEG_INFINITY,
         unconfirmed: vec![0; reqs.len()],
-        nearest: vec![f64::NEG_INFINITY; reqs.len()],
+        nearest: vec![None; reqs.len()],
         ..FaultResult::default()
     };
     // The lone futures of vehicles the driver no longer steers (see `LoneWalks`), each
@@ -1253,7 +1327,14 @@ pub fn search_fault<'v>(
                                     res.violations.push(v);
                                 }
                                 Some(Err(near)) => {
-                                    res.nearest[ri] = res.nearest[ri].max(near);
+                                    keep_nearer(
+                                        &mut res.nearest[ri],
+                                        &near,
+                                        &pedal,
+                                        inject_step,
+                                        second_step,
+                                        period,
+                                    );
                                     res.unconfirmed[ri] += 1;
                                 }
                                 None => res.unconfirmed[ri] += 1,
