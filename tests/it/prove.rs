@@ -26,6 +26,17 @@ fn focused(only: &str) -> Config {
     }
 }
 
+/// The prover's own grid, resolution and horizon for one fault family, with a bound that
+/// lets the van's searches close.
+fn complete(only: &str) -> Config {
+    Config {
+        max_states: 10_000_000,
+        jobs: 1,
+        only: Some(only.to_string()),
+        ..Config::default()
+    }
+}
+
 /// A fresh folder of this process's own: tests run in parallel, and two of them may ask for
 /// the same name (one removing it while the other writes into it), so each call numbers its
 /// folder.
@@ -361,12 +372,7 @@ fn worst_detection_time_of_an_open_track_follows_from_the_filter_and_the_debounc
 fn a_track_stuck_under_a_held_pedal_is_latent() {
     let m = load("scenarios/van/van_throttle.limp");
     // The prover's own grid and horizon (a coarser grid does not close within the bound).
-    let cfg = Config {
-        max_states: 10_000_000,
-        jobs: 1,
-        only: Some("pedal.a stuck".into()),
-        ..Config::default()
-    };
+    let cfg = complete("pedal.a stuck");
     let proof = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
     let r = &proof.rows[0].result;
     assert!(!r.truncated, "the search must close");
@@ -434,9 +440,7 @@ fn a_bounded_search_says_how_deep_it_searched() {
         let cfg = Config {
             max_states,
             horizon: Time::from_ms(horizon_ms),
-            jobs: 1,
-            only: Some("pedal.a open".into()),
-            ..Config::default()
+            ..complete("pedal.a open")
         };
         let p = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
         assert_eq!(p.rows.len(), 1);
@@ -474,9 +478,7 @@ fn probes_stay_within_the_bound() {
         let cfg = Config {
             max_states,
             horizon: Time::from_ms(horizon_ms),
-            jobs: 1,
-            only: Some("pedal.a open".into()),
-            ..Config::default()
+            ..complete("pedal.a open")
         };
         let p = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
         let probes = p.rows[0].result.probes;
@@ -504,12 +506,7 @@ fn probes_stay_within_the_bound() {
 fn the_nearest_approach_is_the_requirements_own_measure_along_the_drive() {
     use limpet::sim::system::System;
     let m = load("scenarios/van/van_throttle.limp");
-    let cfg = Config {
-        max_states: 10_000_000,
-        jobs: 1,
-        only: Some("throttle.b gain 94.67".into()),
-        ..Config::default()
-    };
+    let cfg = complete("throttle.b gain 94.67");
     let p = prove::prove(&m, &cfg, &|_, _, _| {}).expect("plant derives");
     let row = &p.rows[0];
     let v = row
@@ -580,12 +577,7 @@ fn the_nearest_approach_is_the_requirements_own_measure_along_the_drive() {
 fn near_miss_scripts_replay_to_the_same_opening() {
     let dir = temp_dir("near");
     let cfg = app::ProveConfig {
-        search: Config {
-            max_states: 10_000_000,
-            jobs: 1,
-            only: Some("throttle.a open".into()),
-            ..Config::default()
-        },
+        search: complete("throttle.a open"),
         format: Format::Text,
         counterexamples: Some(dir.to_string_lossy().into_owned()),
         progress: false,
