@@ -588,22 +588,9 @@ fn keep_nearer(
 pub const MAX_CONFIRMATIONS: usize = 64;
 
 /// Replays a pedal path exactly, with the faults injected at the start of `inject_step`, beside
-/// the fault-free vehicle, and returns the first violation of requirement `r` on it.
+/// the fault-free vehicle, and returns the first violation of requirement `r` on it, or when
+/// the path does not break it, how near it came (see [`FaultResult::nearest`]).
 pub fn confirm(
-    vehicle: &Vehicle,
-    inj: &[Injection],
-    pedal: &[f64],
-    inject_step: u32,
-    second_step: Option<u32>,
-    ri: usize,
-    r: &Req,
-) -> Option<Violation> {
-    confirm_nearest(vehicle, inj, pedal, inject_step, second_step, ri, r).ok()
-}
-
-/// [`confirm`], or when the path does not break the requirement, how near it came (see
-/// [`FaultResult::nearest`]).
-pub fn confirm_nearest(
     vehicle: &Vehicle,
     inj: &[Injection],
     pedal: &[f64],
@@ -1310,15 +1297,7 @@ pub fn search_fault<'v>(
                                     .flatten()
                                     .is_some();
                             let replayed = screened.then(|| {
-                                confirm_nearest(
-                                    vehicle,
-                                    inj,
-                                    &pedal,
-                                    inject_step,
-                                    second_step,
-                                    ri,
-                                    r,
-                                )
+                                confirm(vehicle, inj, &pedal, inject_step, second_step, ri, r)
                             });
                             match replayed {
                                 Some(Ok(v)) => {
