@@ -708,10 +708,10 @@ mod tests {
         let cfg = Config::default();
         let pre = crate::prove::search::pre_fault(&vehicle, &cfg);
         let g = grid(&cfg);
-        let mut fg = Faulty::new(&vehicle, inj, &cfg, pre.nodes[0].sys.sample().clone(), max);
+        let mut fg = Faulty::new(&vehicle, inj, &cfg, pre.key_on.sample().clone(), max);
         let mut frontier = Vec::new();
         for node in pre.nodes.iter().step_by(20) {
-            let Some(st) = node.sys.controller_state() else {
+            let Some(st) = node.state.as_ref() else {
                 continue;
             };
             let (list, plate) = break_into(
@@ -719,8 +719,8 @@ mod tests {
                 inj[0],
                 Time(model.period.0 * u64::from(node.depth)),
                 g[usize::from(node.pedal)],
-                node.sys.plate(),
-                node.sys.active_faults(),
+                node.plate,
+                &[],
             );
             let faults = fg.lists.add(None, list);
             let f = fg.intern(

@@ -651,26 +651,16 @@ mod tests {
             },
             fault: TrackFault::Gain { factor: 1.5 },
         }];
-        let mut fg = Faulty::new(
-            &vehicle,
-            &inj,
-            &cfg,
-            pre.nodes[0].sys.sample().clone(),
-            1 << 20,
-        );
+        let mut fg = Faulty::new(&vehicle, &inj, &cfg, pre.key_on.sample().clone(), 1 << 20);
         let horizon = 240;
-        let mut walks = LoneWalks::new(
-            &model,
-            pre.nodes[0].sys.sample().clone(),
-            1 << 20,
-            cfg.resolution,
-        );
+        let mut walks =
+            LoneWalks::new(&model, pre.key_on.sample().clone(), 1 << 20, cfg.resolution);
         let reqs = van_requirements();
         // Breadth-first over the faulty graph from a spread of injection instants, collecting
         // the lone nodes as the search meets them.
         let mut frontier = Vec::new();
         for node in pre.nodes.iter().step_by(7) {
-            let Some(st) = node.sys.controller_state() else {
+            let Some(st) = node.state.as_ref() else {
                 continue;
             };
             let (list, plate) = crate::prove::search::break_into(
@@ -678,8 +668,8 @@ mod tests {
                 inj[0],
                 Time(model.period.0 * u64::from(node.depth)),
                 crate::prove::search::grid(&cfg)[usize::from(node.pedal)],
-                node.sys.plate(),
-                node.sys.active_faults(),
+                node.plate,
+                &[],
             );
             let faults = fg.lists.add(None, list);
             let f = fg.intern(st.clone(), plate, faults, node.depth, 0, node.pedal, true);
@@ -718,7 +708,7 @@ mod tests {
             let mut plate = fg.plate[f as usize];
             let faults = fg.hot(f).faults as usize;
             let mut positions = vec![0.0; model.sensors.len()];
-            let mut scratch = (pre.nodes[0].sys.sample().clone(), Outputs::default());
+            let mut scratch = (pre.key_on.sample().clone(), Outputs::default());
             let mut exact = Vec::new();
             for k in 0..horizon {
                 crate::sim::system::period(

@@ -8,12 +8,12 @@
 use super::faulty::{DROPPED, Faulty};
 use super::lone::{LoneWalks, constant_can_violate};
 use super::{Config, Requirement as Req};
+use crate::controller::State;
 use crate::faults::{ActiveFault, Injection};
 use crate::model::Model;
 use crate::plant::PlantState;
 use crate::sim::system::{System, Vehicle};
 use crate::time::Time;
-use std::collections::HashSet;
 use std::hash::{BuildHasherDefault, Hasher};
 
 /// The visited set stores 128-bit digests of state encodings: two independent 64-bit streams,
@@ -75,8 +75,6 @@ impl Hasher for PassThrough {
     }
 }
 
-pub type Visited = HashSet<u128, BuildHasherDefault<PassThrough>>;
-
 /// Requirement timers carried in the state.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct Timers {
@@ -137,11 +135,15 @@ impl Timers {
     }
 }
 
-/// A fault-free state: the vehicle, the pedal grid index it was driven with last, its timers,
-/// and how it was reached.
+/// A fault-free state: the controller's memory and the plate (the rest of the vehicle is the
+/// key-on vehicle's, see [`PreSet::system`]), the pedal grid index it was driven with last,
+/// its timers, and how it was reached. Kept this compactly because a fine resolution makes
+/// millions of them: a whole vehicle, with its samples and outputs, took about 2 KB.
 #[derive(Clone, Debug)]
-pub struct PreNode<'v> {
-    pub sys: System<'v>,
+pub struct PreNode {
+    /// `None` at key on, before the first step.
+    pub state: Option<State>,
+    pub plate: PlantState,
     pub pedal: u8,
     pub released: u16,
     pub parent: u32,
@@ -152,7 +154,9 @@ pub struct PreNode<'v> {
 
 /// The fault-free reachable set, closed under the pedal actions.
 pub struct PreSet<'v> {
-    pub nodes: Vec<PreNode<'v>>,
+    /// The vehicle at key on, before its first step: node 0.
+    pub key_on: System<'v>,
+    pub nodes: Vec<PreNode>,
     /// Whether the bound on states was hit before closure.
     pub truncated: bool,
     /// Per node, what the joint search reads of a twin, packed (see [`PreHot`]).
@@ -180,7 +184,13 @@ pub struct PreHot {
     pub release: u32,
 }
 
-impl PreSet<'_> {
+impl<'v> PreSet<'v> {
+    /// The fault-free vehicle at node `t`, ready to be stepped.
+    pub fn system(&self, t: u32) -> System<'v> {
+        let n = &self.nodes[t as usize];
+        self.key_on.with_state(n.state.as_ref(), n.plate)
+    }
+
     /// The monitors set in node `t`, as 64-bit words, or `None` when the set has none.
     pub fn mask(&self, t: u32) -> Option<&[u64]> {
         let i = t as usize * self.words;
@@ -309,11 +319,12 @@ pub fn encode_system(sys: &System<'_>, model: &Model, res: f64, out: &mut Vec<u8
 pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
     let model = vehicle.ctl.model();
     let g = grid(cfg);
-    let mut visited = Visited::default();
     let mut index: std::collections::HashMap<u128, u32, BuildHasherDefault<PassThrough>> =
         Default::default();
+    let key_on = System::new(vehicle);
     let root = PreNode {
-        sys: System::new(vehicle),
+        state: None,
+        plate: key_on.plate(),
         pedal: 0,
         released: 0,
         parent: u32::MAX,
@@ -322,14 +333,13 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
     };
     let mut nodes = vec![root];
     let mut buf = Vec::with_capacity(256);
-    let key = |n: &PreNode<'_>, buf: &mut Vec<u8>| {
+    let key = |sys: &System<'_>, pedal: u8, buf: &mut Vec<u8>| {
         buf.clear();
-        encode_system(&n.sys, model, cfg.resolution, buf);
-        buf.push(n.pedal);
+        encode_system(sys, model, cfg.resolution, buf);
+        buf.push(pedal);
         digest(buf)
     };
-    let k0 = key(&nodes[0], &mut buf);
-    visited.insert(k0);
+    let k0 = key(&key_on, 0, &mut buf);
     index.insert(k0, 0);
     let release_cap = release_cap(model, cfg);
     let mut acts = Vec::new();
@@ -343,23 +353,25 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
         let now = Time(model.period.0 * u64::from(depth));
         actions(cfg, pedal, g.len(), &mut acts);
         let mut succ = Vec::with_capacity(acts.len());
+        let here = key_on.with_state(nodes[i].state.as_ref(), nodes[i].plate);
         for &a in &acts {
-            let mut sys = nodes[i].sys.clone();
+            let mut sys = here.clone();
             period_step(&mut sys, model, g[usize::from(a)], now);
             let rel = if a == 0 {
                 (released + 1).min(release_cap)
             } else {
                 0
             };
+            let k = key(&sys, a, &mut buf);
             let child = PreNode {
-                sys,
+                state: sys.controller_state().cloned(),
+                plate: sys.plate(),
                 pedal: a,
                 released: rel,
                 parent: i as u32,
                 depth: depth + 1,
                 succ: Vec::new(),
             };
-            let k = key(&child, &mut buf);
             if let Some(&j) = index.get(&k) {
                 if child.released > nodes[j as usize].released && !is_ancestor(&nodes, j, i as u32)
                 {
@@ -367,7 +379,8 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
                     old.released = child.released;
                     old.parent = i as u32;
                     old.depth = child.depth;
-                    old.sys = child.sys;
+                    old.state = child.state;
+                    old.plate = child.plate;
                     queue.push_back(j as usize);
                 }
                 succ.push(j);
@@ -378,7 +391,6 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
                 succ.push(i as u32);
                 continue;
             }
-            visited.insert(k);
             let j = nodes.len() as u32;
             index.insert(k, j);
             nodes.push(child);
@@ -393,19 +405,23 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
     let mut hot = Vec::with_capacity(nodes.len());
     let stride = if cfg.free_pedal { g.len() } else { 3 };
     let mut flat = Vec::with_capacity(nodes.len() * stride);
-    for (i, n) in nodes.iter().enumerate() {
-        push_monitor_words(model.faults.len(), |f| n.sys.fault_set(f), &mut masks);
-        let c = plate_cell(n.sys.plate(), cfg.resolution);
+    for (i, n) in nodes.iter_mut().enumerate() {
+        let set = |f| n.state.as_ref().is_some_and(|s| s.fault_set(f));
+        push_monitor_words(model.faults.len(), set, &mut masks);
+        let c = plate_cell(n.plate, cfg.resolution);
         let next = classes.len() as u32;
         hot.push(PreHot {
-            opening: n.sys.opening(),
+            opening: n.plate.position,
             class: *classes.entry(c).or_insert(next),
             release: n.succ[0],
         });
         flat.extend((0..stride).map(|a| n.succ.get(a).copied().unwrap_or(i as u32)));
+        // Read from the flat table from here on.
+        n.succ = Vec::new();
     }
     let any_mask = masks.iter().any(|&m| m != 0);
     PreSet {
+        key_on,
         nodes,
         truncated,
         hot,
@@ -418,7 +434,7 @@ pub fn pre_fault<'v>(vehicle: &'v Vehicle, cfg: &Config) -> PreSet<'v> {
 }
 
 /// Whether `a` is `b` or one of its ancestors in the pre-fault tree.
-fn is_ancestor(nodes: &[PreNode<'_>], a: u32, mut b: u32) -> bool {
+fn is_ancestor(nodes: &[PreNode], a: u32, mut b: u32) -> bool {
     while b != u32::MAX {
         if a == b {
             return true;
@@ -673,7 +689,7 @@ impl<'v> Prefix<'v> {
         let n = &pre.nodes[i as usize];
         Prefix {
             vehicle,
-            sys: n.sys.clone(),
+            sys: pre.system(i),
             steps: n.depth,
             released: u32::from(n.released),
         }
@@ -1058,7 +1074,7 @@ pub fn search_fault<'v>(
         vehicle,
         inj,
         cfg,
-        pre.nodes[0].sys.sample().clone(),
+        pre.key_on.sample().clone(),
         cfg.max_states.min(MAX_NODES),
     );
 
@@ -1072,7 +1088,7 @@ pub fn search_fault<'v>(
     // recorded in its faulty node.
     let mut walks = LoneWalks::new(
         model,
-        pre.nodes[0].sys.sample().clone(),
+        pre.key_on.sample().clone(),
         cfg.max_states.min(MAX_NODES),
         cfg.resolution,
     );
@@ -1095,7 +1111,7 @@ pub fn search_fault<'v>(
     // Roots: the fault injected into every fault-free state, i.e. at every injection instant
     // the fault-free set tells apart at the resolution.
     for (oi, o) in pre.nodes.iter().enumerate() {
-        let Some(st) = o.sys.controller_state() else {
+        let Some(st) = o.state.as_ref() else {
             // The key-on state before the first step: its first step is explored from the
             // fault-free set's first successors instead.
             continue;
@@ -1107,8 +1123,9 @@ pub fn search_fault<'v>(
             inj[0],
             now,
             g[usize::from(o.pedal)],
-            o.sys.plate(),
-            o.sys.active_faults(),
+            o.plate,
+            // The fault-free vehicle has none.
+            &[],
         );
         let faults = fg.lists.add(None, list);
         let f = fg.intern(

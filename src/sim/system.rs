@@ -290,6 +290,19 @@ impl<'v> System<'v> {
         self.state.as_ref()
     }
 
+    /// This vehicle with its controller's memory and plate replaced: what a vehicle driven
+    /// like this one (same key, sample inputs, switches, faults and actuator) is once it has
+    /// reached `state` and `plate`. A step recomputes every output from the state and the
+    /// sample, so nothing else of the vehicle it came from carries over. The prover keeps
+    /// fault-free states this compactly and makes vehicles of them again when it steps them.
+    pub fn with_state(&self, state: Option<&State>, plate: PlantState) -> System<'v> {
+        let mut sys = self.clone();
+        sys.state = state.cloned();
+        sys.plate = plate;
+        sys.positions[self.ctl.model().feedback] = plate.position;
+        sys
+    }
+
     pub fn controller(&self) -> &'v Controller {
         self.ctl
     }

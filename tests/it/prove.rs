@@ -615,3 +615,36 @@ fn near_miss_scripts_replay_to_the_same_opening() {
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A fault-free vehicle kept as its controller's memory and plate alone, and made whole again
+/// (`System::with_state`, how the prover keeps its fault-free states), steps exactly as the
+/// vehicle it was taken from: every output a step needs is recomputed from the state and the
+/// sample (common practice, no source: a step is a function of state and inputs).
+#[test]
+fn a_vehicle_made_again_from_its_state_steps_as_the_original() {
+    use limpet::sim::system::System;
+    let m = load("scenarios/van/van_throttle.limp");
+    let vehicle = Vehicle::new(&m).expect("plant derives");
+    let mut rng = Rng(0x5eed_0000_face_0003);
+    let mut pedal = 0.0f64;
+    let mut drive = |rng: &mut Rng| {
+        pedal = (pedal + 5.0 * (rng.below(3) as f64 - 1.0)).clamp(0.0, 100.0);
+        pedal
+    };
+    let mut a = System::new(&vehicle);
+    let mut k = 0u64;
+    for _ in 0..150 {
+        search::period_step(&mut a, &m, drive(&mut rng), Time(m.period.0 * k));
+        k += 1;
+    }
+    let mut b = System::new(&vehicle).with_state(a.controller_state(), a.plate());
+    for _ in 0..300 {
+        let p = drive(&mut rng);
+        let now = Time(m.period.0 * k);
+        search::period_step(&mut a, &m, p, now);
+        search::period_step(&mut b, &m, p, now);
+        k += 1;
+        assert_eq!(a.controller_state(), b.controller_state(), "step {k}");
+        assert_eq!(a.plate(), b.plate(), "step {k}");
+    }
+}
