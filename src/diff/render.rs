@@ -14,9 +14,13 @@ const CAUTION: &str = "limpet is a design aid, not a substitute for a safety cas
 const BOUND: &str = "a search hit its state bound: cells marked `?` are not verdicts; run `limpet prove` on each revision for a full search";
 /// The note on rows compared by their verdicts only.
 fn verdicts_only(n: usize) -> String {
+    let (rows, verb, their) = if n == 1 {
+        ("row", "compares", "its")
+    } else {
+        ("rows", "compare", "their")
+    };
     format!(
-        "{} that a search stopped short of closing (the bound, or every requirement already violated) compare only their verdicts: their figures cover only the part searched (column `searched` of `limpet prove`)",
-        plural(n, "row", "rows")
+        "{n} {rows} that a search stopped short of closing (the bound, or every requirement already violated) {verb} only {their} verdicts: {their} figures cover only the part searched (column `searched` of `limpet prove`)"
     )
 }
 
@@ -366,7 +370,11 @@ pub fn markdown(r: &Report) -> String {
             let _ = writeln!(o, "{}\n", verdicts_only(m.verdicts_only));
         }
         if m.changed.is_empty() {
-            let _ = writeln!(o, "All {} are the same.", plural(m.rows, "row", "rows"));
+            if m.rows == 1 {
+                let _ = writeln!(o, "The one row is the same.");
+            } else {
+                let _ = writeln!(o, "All {} rows are the same.", m.rows);
+            }
         } else {
             o.push_str("| fault | column | old | new |\n|---|---|---|---|\n");
             for row in &m.changed {
