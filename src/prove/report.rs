@@ -411,13 +411,10 @@ pub fn summary(m: &Model, p: &Proof) -> String {
             p.config.max_states
         );
     }
-    let truncated = p.rows.iter().filter(|r| r.bound_hit(p)).count();
+    let bounded: Vec<&Row> = p.rows.iter().filter(|r| r.bound_hit(p)).collect();
+    let truncated = bounded.len();
     if truncated > 0 {
-        let depths = p
-            .rows
-            .iter()
-            .filter(|r| r.bound_hit(p))
-            .filter_map(|r| r.result.searched_to);
+        let depths = bounded.iter().filter_map(|r| r.result.searched_to);
         let (lo, hi) = depths.fold((u32::MAX, 0), |(lo, hi), d| (lo.min(d), hi.max(d)));
         let at = |s: u32| ms(Some(Time(m.period.0 * u64::from(s))));
         let span = if lo >= hi {
@@ -541,27 +538,15 @@ pub fn script(
         "# Counterexample from limpet prove: {} breaks `{req}`.",
         row.describe(m)
     );
-    drive(
-        m,
-        row,
-        &v.pedal,
-        v.inject_step,
-        v.second_step,
-        name,
-        policy_path,
-        v.at,
-        &mut o,
-    );
     // The bound, rounded towards the side the opening broke it on, so the replay fails there.
     let x = (v.bound * 100.0).floor() / 100.0;
-    let _ = writeln!(
-        o,
-        "  expect opening at most {} % from {} to {}",
-        trim(x),
-        v.at,
-        v.at
-    );
-    let _ = writeln!(o, "}}");
+    let drive = Drive {
+        pedal: &v.pedal,
+        inject_step: v.inject_step,
+        second_step: v.second_step,
+        at: v.at,
+    };
+    drive.write(m, row, name, policy_path, x, &mut o);
     o
 }
 
@@ -569,7 +554,6 @@ pub fn script(
 /// (see [`super::search::FaultResult::nearest`]), as a script for `limpet run`: a reviewer
 /// replays it to see how close an unresolved cell's exact replays came. Its expectation holds:
 /// the opening at that instant, rounded up to a hundredth.
-#[allow(clippy::too_many_arguments)]
 pub fn near_script(
     m: &Model,
     p: &Proof,
@@ -597,69 +581,71 @@ pub fn near_script(
         nearest(m, p, row, ri),
         near.at
     );
-    drive(
+    let drive = Drive {
+        pedal: &near.pedal,
+        inject_step: near.inject_step,
+        second_step: near.second_step,
+        at: near.at,
+    };
+    drive.write(
         m,
         row,
-        &near.pedal,
-        near.inject_step,
-        near.second_step,
         name,
         policy_path,
-        near.at,
+        (near.opening * 100.0).ceil() / 100.0,
         &mut o,
     );
-    let x = (near.opening * 100.0).ceil() / 100.0;
-    let _ = writeln!(
-        o,
-        "  expect opening at most {} % from {} to {}",
-        trim(x),
-        near.at,
-        near.at
-    );
-    let _ = writeln!(o, "}}");
     o
 }
 
-/// A script's header and drive: the pedal, one grid value per controller period, and the
-/// faults' `break`s at their steps, up to `end`.
-#[allow(clippy::too_many_arguments)]
-fn drive(
-    m: &Model,
-    row: &Row,
-    pedal: &[f64],
+/// A drive from key on to instant `at`: the pedal, one grid value per controller period, and
+/// the steps the faults arrive at.
+struct Drive<'a> {
+    pedal: &'a [f64],
     inject_step: u32,
     second_step: Option<u32>,
-    name: &str,
-    policy_path: &str,
-    end: Time,
-    o: &mut String,
-) {
-    let _ = writeln!(
-        o,
-        "# The driver's pedal moves on the prover's grid, one value per controller period."
-    );
-    let _ = writeln!(o, "scenario {name} {{");
-    let _ = writeln!(o, "  policy \"{policy_path}\"");
-    let _ = writeln!(o, "  length {}", end + m.period);
-    let _ = writeln!(o);
-    let mut last: Option<f64> = None;
-    for (k, &p) in pedal.iter().enumerate() {
-        let at = Time(m.period.0 * k as u64);
-        for (n, inj) in row.faults.iter().enumerate() {
-            let step = match (n, second_step) {
-                (0, _) | (_, None) => inject_step,
-                (_, Some(s)) => s,
-            };
-            if k == step as usize {
-                let _ = writeln!(o, "  at {:<9} break {}", at.to_string(), describe(m, inj));
+    at: Time,
+}
+
+impl Drive<'_> {
+    /// Writes the drive as scenario `name` of the policy at `policy_path`, the faults' `break`s
+    /// at their steps, with one expectation: the opening at most `x` % at `at`.
+    fn write(&self, m: &Model, row: &Row, name: &str, policy_path: &str, x: f64, o: &mut String) {
+        let _ = writeln!(
+            o,
+            "# The driver's pedal moves on the prover's grid, one value per controller period."
+        );
+        let _ = writeln!(o, "scenario {name} {{");
+        let _ = writeln!(o, "  policy \"{policy_path}\"");
+        let _ = writeln!(o, "  length {}", self.at + m.period);
+        let _ = writeln!(o);
+        let mut last: Option<f64> = None;
+        for (k, &p) in self.pedal.iter().enumerate() {
+            let at = Time(m.period.0 * k as u64);
+            for (n, inj) in row.faults.iter().enumerate() {
+                let step = match (n, self.second_step) {
+                    (0, _) | (_, None) => self.inject_step,
+                    (_, Some(s)) => s,
+                };
+                if k == step as usize {
+                    let _ = writeln!(o, "  at {:<9} break {}", at.to_string(), describe(m, inj));
+                }
+            }
+            if last != Some(p) {
+                let _ = writeln!(o, "  at {:<9} pedal {} %", at.to_string(), trim(p));
+                last = Some(p);
             }
         }
-        if last != Some(p) {
-            let _ = writeln!(o, "  at {:<9} pedal {} %", at.to_string(), trim(p));
-            last = Some(p);
-        }
+        let _ = writeln!(o);
+        let _ = writeln!(
+            o,
+            "  expect opening at most {} % from {} to {}",
+            trim(x),
+            self.at,
+            self.at
+        );
+        let _ = writeln!(o, "}}");
     }
-    let _ = writeln!(o);
 }
 
 #[cfg(test)]

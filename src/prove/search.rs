@@ -540,13 +540,12 @@ pub struct FaultResult {
 
 /// How near one replayed drive came to breaking a requirement (see
 /// [`FaultResult::nearest`]): the measure, the step (index into the drive) it peaked at, and
-/// the opening and the bound there.
+/// the opening there.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Near {
     pub value: f64,
     pub step: usize,
     pub opening: f64,
-    pub bound: f64,
 }
 
 impl Near {
@@ -555,7 +554,6 @@ impl Near {
         value: f64::NEG_INFINITY,
         step: 0,
         opening: 0.0,
-        bound: 0.0,
     };
 }
 
@@ -571,7 +569,6 @@ pub struct NearMiss {
     /// The end of the step it came nearest at.
     pub at: Time,
     pub opening: f64,
-    pub bound: f64,
 }
 
 /// Keeps `near` in `slot` if it came nearer than what `slot` holds (the first of equals).
@@ -591,7 +588,6 @@ fn keep_nearer(
             second_step,
             at: Time(period.0 * (near.step as u64 + 1)),
             opening: near.opening,
-            bound: near.bound,
         });
     }
 }
@@ -781,7 +777,6 @@ impl<'v> Prefix<'v> {
                         value: m,
                         step: k,
                         opening: open,
-                        bound,
                     };
                 }
                 if let Some(bound) = hit {
@@ -811,7 +806,7 @@ impl<'v> Prefix<'v> {
 /// periods they step in all stay within `--max-states` (a long horizon probes fewer roots), so
 /// the bound bounds their work too. Returns the drives probed.
 #[allow(clippy::too_many_arguments)]
-pub fn probe(
+fn probe(
     vehicle: &Vehicle,
     pre: &PreSet<'_>,
     roots: &[u32],
