@@ -455,28 +455,20 @@ pub fn matrices(po: &Proof, pn: &Proof, names: &Names) -> MatrixDiff {
     let nm = |m: usize| names.new_mode(m);
     let resolution = po.config.resolution.max(pn.config.resolution);
     // Per row: its fault, its cells, and whether its search closed.
-    let old_rows: Vec<(String, Vec<Cell>, bool)> = po
-        .rows
-        .iter()
-        .map(|r| {
-            (
-                r.describe(names.old),
-                row_cells(names.old, po, r, &of, &om),
-                r.result.searched_to.is_none(),
-            )
-        })
-        .collect();
-    let new_rows: Vec<(String, Vec<Cell>, bool)> = pn
-        .rows
-        .iter()
-        .map(|r| {
-            (
-                r.describe(names.new),
-                row_cells(names.new, pn, r, &nf, &nm),
-                r.result.searched_to.is_none(),
-            )
-        })
-        .collect();
+    let rows = |p: &Proof, m: &Model, f: &dyn Fn(usize) -> String, md: &dyn Fn(usize) -> String| {
+        p.rows
+            .iter()
+            .map(|r| {
+                (
+                    r.describe(m),
+                    row_cells(m, p, r, f, md),
+                    r.result.searched_to.is_none(),
+                )
+            })
+            .collect::<Vec<_>>()
+    };
+    let old_rows = rows(po, names.old, &of, &om);
+    let new_rows = rows(pn, names.new, &nf, &nm);
     let mut changed = Vec::new();
     let mut verdicts_only = 0;
     for (fault, oc, o_closed) in &old_rows {
